@@ -1,0 +1,308 @@
+"""The search driver: one loop, one budget, any method.
+
+:class:`Search` holds the whole state of a run explicitly and advances it one
+generation per :meth:`Search.step`, so a run can be checkpointed and resumed.
+Every method runs under the same accounting: each candidate handed to the
+objective is one evaluation, and the evaluation budget is a hard cap.
+The goal (maximise or minimise) is handled here and only here: methods see a
+*fitness* that is always to be maximised.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import asdict, dataclass, field
+from typing import Callable, List, Optional, Union
+
+import numpy as np
+
+from optim.evaluate import Evaluator, candidate_text
+from optim.methods import METHODS, make_method
+from optim.problem import Problem
+
+__all__ = ["SearchSettings", "StopRules", "SearchResult", "Search", "STOP_REASONS"]
+
+#: Why a run ended.
+STOP_REASONS = {
+    "target": "reached the target score",
+    "budget": "used the whole evaluation budget",
+    "patience": "no improvement for `patience` generations",
+    "collapsed": "the selected candidates became identical (the model collapsed)",
+}
+
+
+@dataclass
+class SearchSettings:
+    """How to search. These defaults are the documented defaults of run configs.
+
+    Attributes
+    ----------
+    method : str
+        One of ``tree``, ``forest``, ``univariate``, ``hillclimb``, ``random``.
+    population : int
+        Candidates per generation (for the hill climber and random search: evaluations per logged step).
+    select : float
+        Fraction of the pool kept by truncation selection, in (0, 1].
+    prior : float
+        Dirichlet pseudo-count in the model's probability tables.
+    elitism : bool
+        Keep the selected candidates in the next generation's pool.
+    alpha : float
+        Significance level of the forest's edge test.
+    jobs : int
+        Parallel workers for per-candidate objectives.
+    cache : bool
+        Serve repeated candidates from a cache. The budget still counts every candidate the
+        method asks for, so a cache never changes a run's course; the objective calls saved
+        are reported as ``cache_hits`` beside ``objective_calls``.
+    """
+
+    method: str = "tree"
+    population: int = 1000
+    select: float = 0.5
+    prior: float = 1.0
+    elitism: bool = True
+    alpha: float = 0.01
+    jobs: int = 1
+    cache: bool = False
+
+
+@dataclass
+class StopRules:
+    """When to stop; the first rule that holds ends the run.
+
+    Attributes
+    ----------
+    evaluations : int
+        The evaluation budget, never exceeded.
+    target : float, "optimum" or None
+        Stop once a score at least this good is found; ``"optimum"`` uses the
+        problem's known optimum (no target when it has none); ``None`` disables.
+    patience : int or None
+        Stop after this many generations without improvement of the best score.
+    collapse : bool
+        Stop when the selected candidates are all identical.
+    """
+
+    evaluations: int = 100_000
+    target: Union[float, str, None] = "optimum"
+    patience: Optional[int] = None
+    collapse: bool = True
+
+
+@dataclass
+class SearchResult:
+    """What a finished search returns."""
+
+    best_solution: np.ndarray
+    best_score: float
+    evaluations: int
+    generations: int
+    stop_reason: str
+    evaluations_to_target: Optional[int]
+    target: Optional[float]
+    seed: int
+    method: str
+    history: List[dict] = field(default_factory=list)
+    model: object = None
+    failures: int = 0
+    cache_hits: int = 0
+    objective_calls: int = 0
+
+    @property
+    def solution_text(self) -> str:
+        return candidate_text(self.best_solution)
+
+    def to_dict(self) -> dict:
+        """The JSON-friendly summary written as ``result.json``."""
+        return {
+            "best_score": self.best_score,
+            "best_solution": self.solution_text,
+            "evaluations": self.evaluations,
+            "generations": self.generations,
+            "stop_reason": self.stop_reason,
+            "evaluations_to_target": self.evaluations_to_target,
+            "target": self.target,
+            "seed": self.seed,
+            "method": self.method,
+            "failures": self.failures,
+            "cache_hits": self.cache_hits,
+            "objective_calls": self.objective_calls,
+        }
+
+
+def _resolve_target(target, problem: Problem) -> Optional[float]:
+    if target is None:
+        return None
+    if isinstance(target, str):
+        if target != "optimum":
+            raise ValueError(f"The 'target' stop rule must be a number, 'optimum' or None. Got {target!r} instead.")
+        return problem.optimum
+    return float(target)
+
+
+class Search:
+    """A run of one method on one problem, advanced one generation at a time.
+
+    Parameters
+    ----------
+    problem : Problem
+        The objective.
+    settings : SearchSettings
+        Method and its parameters.
+    stop : StopRules
+        When to stop.
+    seed : int
+        The single seed every random draw of the run flows from
+        (``numpy.random.SeedSequence(seed)``).
+    evaluator : Evaluator, optional
+        Provide one to share a cache or a parallel backend; built from
+        ``settings`` otherwise.
+    """
+
+    def __init__(
+        self,
+        problem: Problem,
+        settings: Optional[SearchSettings] = None,
+        stop: Optional[StopRules] = None,
+        seed: int = 0,
+        evaluator: Optional[Evaluator] = None,
+    ):
+        self.problem = problem
+        self.settings = settings or SearchSettings()
+        self.stop = stop or StopRules()
+        if self.settings.method not in METHODS:
+            raise ValueError(f"Unknown method {self.settings.method!r}; choose one of {list(METHODS)}.")
+        self.seed = int(seed)
+        method_stream = np.random.SeedSequence(self.seed).spawn(1)[0]
+        self.rng = np.random.Generator(np.random.PCG64(method_stream))
+        s = self.settings
+        self.method = make_method(
+            s.method, problem, self.rng, population=s.population, select=s.select, prior=s.prior,
+            elitism=s.elitism, alpha=s.alpha, lookahead=s.jobs,
+        )
+        self.evaluator = evaluator or Evaluator(problem, jobs=s.jobs, cache=s.cache)
+        self.sign = 1.0 if problem.goal == "maximize" else -1.0
+        self.target = _resolve_target(self.stop.target, problem)
+        self.generation = 0
+        self.evaluations = 0
+        self.best_fitness = -np.inf
+        self.best_solution: Optional[np.ndarray] = None
+        self.evaluations_to_target: Optional[int] = None
+        self.stale_generations = 0
+        self.stop_reason: Optional[str] = None
+        self.history: List[dict] = []
+        self.elapsed = 0.0
+        self._evaluate_seconds = 0.0
+
+    # -- the goal lives here ------------------------------------------------------------------
+    def _fitness(self, X: np.ndarray) -> np.ndarray:
+        start = time.perf_counter()
+        scores = self.evaluator(X)
+        self._evaluate_seconds += time.perf_counter() - start
+        return self.sign * scores
+
+    def _score(self, fitness: float) -> float:
+        return float(self.sign * fitness)
+
+    def _meets_target(self, fitness: np.ndarray) -> np.ndarray:
+        target_fitness = self.sign * self.target
+        tolerance = 1e-9 * max(1.0, abs(self.target))
+        return fitness >= target_fitness - tolerance
+
+    # -- stepping -----------------------------------------------------------------------------
+    @property
+    def finished(self) -> bool:
+        return self.stop_reason is not None
+
+    def step(self) -> dict:
+        """Run one generation and return its log record."""
+        if self.finished:
+            raise RuntimeError(f"the search has already stopped ({self.stop_reason})")
+        started = time.perf_counter()
+        self._evaluate_seconds = 0.0
+        budget = self.stop.evaluations - self.evaluations
+        outcome = self.method.step(self._fitness, budget)
+        fitness = outcome.fitness
+        before = self.evaluations
+        self.evaluations += outcome.evaluations
+        if self.evaluations > self.stop.evaluations:
+            raise RuntimeError("a method exceeded the evaluation budget")  # a bug, never the user's fault
+        improved = False
+        if fitness.size:
+            best_here = int(np.argmax(fitness))
+            if fitness[best_here] > self.best_fitness or self.best_solution is None:
+                self.best_fitness = float(fitness[best_here])
+                self.best_solution = outcome.candidates[best_here].copy()
+                improved = True
+            if self.target is not None and self.evaluations_to_target is None:
+                hits = np.flatnonzero(self._meets_target(fitness))
+                if hits.size:
+                    self.evaluations_to_target = before + int(hits[0]) + 1
+        self.stale_generations = 0 if improved else self.stale_generations + 1
+        finite = fitness[np.isfinite(fitness)]
+        entropy = self.method.model_entropy
+        seconds = dict(outcome.seconds)
+        seconds["evaluate"] = self._evaluate_seconds
+        self.elapsed += time.perf_counter() - started
+        record = {
+            "generation": self.generation,
+            "evaluations": self.evaluations,
+            "best": self._score(self.best_fitness) if np.isfinite(self.best_fitness) else None,
+            "mean": self._score(float(finite.mean())) if finite.size else None,
+            "generation_best": self._score(float(finite.max())) if finite.size else None,
+            "model_entropy": None if entropy is None else float(entropy),
+            "failures": self.evaluator.failure_count,
+            "cache_hits": self.evaluator.cache_hits,
+            "objective_calls": self.evaluator.calls,
+            "seconds": round(self.elapsed, 6),
+            "time": {k: round(v, 6) for k, v in seconds.items()},
+        }
+        self.history.append(record)
+        self.generation += 1
+        self.stop_reason = self._check_stop()
+        return record
+
+    def _check_stop(self) -> Optional[str]:
+        if self.evaluations_to_target is not None:
+            return "target"
+        if self.evaluations >= self.stop.evaluations:
+            return "budget"
+        if self.stop.patience is not None and self.stale_generations >= self.stop.patience:
+            return "patience"
+        if self.stop.collapse and self.method.converged:
+            return "collapsed"
+        return None
+
+    def run(self, on_generation: Optional[Callable[["Search", dict], None]] = None) -> SearchResult:
+        """Step until a stop rule holds; ``on_generation(search, record)`` is called after each step."""
+        while not self.finished:
+            record = self.step()
+            if on_generation is not None:
+                on_generation(self, record)
+        return self.result()
+
+    def result(self) -> SearchResult:
+        """The outcome so far (complete once :attr:`finished`)."""
+        if self.best_solution is None:
+            raise RuntimeError("no candidate has been evaluated yet")
+        best_score = self._score(self.best_fitness) if np.isfinite(self.best_fitness) else float("nan")
+        return SearchResult(
+            best_solution=self.best_solution.copy(),
+            best_score=best_score,
+            evaluations=self.evaluations,
+            generations=self.generation,
+            stop_reason=self.stop_reason or "running",
+            evaluations_to_target=self.evaluations_to_target,
+            target=self.target,
+            seed=self.seed,
+            method=self.settings.method,
+            history=list(self.history),
+            model=self.method.model(),
+            failures=self.evaluator.failure_count,
+            cache_hits=self.evaluator.cache_hits,
+            objective_calls=self.evaluator.calls,
+        )
+
+    def settings_dict(self) -> dict:
+        return {"search": asdict(self.settings), "stop": asdict(self.stop), "seed": self.seed}
