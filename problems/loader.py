@@ -20,6 +20,7 @@ import traceback
 from pathlib import Path
 from typing import Any, Callable, Mapping, NamedTuple, Optional
 
+from optim.errors import OptimError
 from optim.problem import FunctionProblem, Problem
 
 __all__ = [
@@ -42,7 +43,7 @@ OBJECTIVE_PARAMETERS = ("n", "cardinality", "goal", "vectorized", "optimum", "va
 _module_counter = itertools.count()
 
 
-class ProblemError(ValueError):
+class ProblemError(OptimError, ValueError):
     """A problem cannot be found, loaded or built; the message says why."""
 
 

@@ -40,19 +40,19 @@ def expect_error(match, use, params=None, base_dir=DATA):
 
 
 def test_registered_names():
-    assert available() == sorted(["onemax", "trap", "four-peaks", "hiff", "ising-ring"])
+    assert {"onemax", "trap", "four-peaks", "hiff", "ising-ring"} <= set(available())
     assert available() == sorted(PROBLEMS)
 
 
-@pytest.mark.parametrize("name", ["onemax", "trap", "four-peaks", "hiff", "ising-ring"])
+@pytest.mark.parametrize("name", sorted(PROBLEMS))
 def test_every_registered_name_builds_with_defaults(name):
     problem = make_problem(name)
     assert isinstance(problem, Problem)
     assert problem.optimum is not None
-    X = np.random.default_rng(0).integers(0, 2, size=(20, problem.n), dtype=np.uint8)
+    X = np.random.default_rng(0).integers(0, problem.cardinality[None, :], size=(20, problem.n)).astype(np.uint8)
     assert problem.evaluate(X).shape == (20,)
     parameters = factory_parameters(get_factory(name))
-    assert parameters and parameters[0].name == "n"
+    assert parameters
     assert all(p.description for p in parameters)
     assert all(p.default is not REQUIRED for p in parameters)
 
@@ -72,7 +72,7 @@ def test_registry_entry_may_be_a_callable(monkeypatch):
 def test_unknown_name_suggests_nearest(name, nearest):
     message = expect_error(f"did you mean '{nearest}'", name)
     assert f"unknown problem '{name}'" in message
-    assert "known problems: four-peaks, hiff, ising-ring, onemax, trap" in message
+    assert "known problems: " + ", ".join(available()) in message
     with pytest.raises(ProblemError, match=f"did you mean '{nearest}'"):
         get_factory(name)
 

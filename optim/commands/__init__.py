@@ -1,0 +1,7 @@
+"""The subcommands of ``optim``; each module has ``register(subparsers)``."""
+
+#: Modules whose ``register`` adds a subcommand, in the order ``optim --help`` lists them.
+COMMAND_MODULES = (
+    "optim.commands.run",
+    "optim.commands.problems",
+)

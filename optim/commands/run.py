@@ -1,0 +1,59 @@
+"""``optim run CONFIG``: one search from a YAML run config."""
+
+from __future__ import annotations
+
+import sys
+
+from optim.commands._common import CAUTION, Progress
+
+__all__ = ["register"]
+
+
+def _cmd_run(args) -> int:
+    from optim.config import load_run_config
+    from optim.runner import build_problem, execute
+
+    overrides = list(args.set or [])
+    if args.seed is not None:
+        overrides.append(f"seed={args.seed}")
+    if args.out is not None:
+        overrides.append(f"out={args.out}")
+    config = load_run_config(args.config, overrides)
+    problem = build_problem(config)
+    progress = Progress(sys.stderr, config.stop.evaluations, quiet=args.quiet)
+    try:
+        outcome = execute(config, problem, on_generation=progress.update)
+    finally:
+        progress.close()
+    result = outcome.result
+    reason = {
+        "target": "reached the target",
+        "budget": "used the evaluation budget",
+        "patience": "no improvement within the patience",
+        "collapsed": "the model collapsed",
+    }.get(result.stop_reason, result.stop_reason)
+    print(f"best score   {result.best_score:.10g}  ({problem.goal}, {reason})")
+    if problem.optimum is not None:
+        print(f"optimum      {problem.optimum:.10g}  ({problem.optimum_source or 'known'})")
+    print(f"solution     {result.solution_text}")
+    print(f"evaluations  {result.evaluations:,} in {result.generations} generations"
+          + (f", target first reached at {result.evaluations_to_target:,}"
+             if result.evaluations_to_target is not None else ""))
+    if result.failures:
+        print(f"failures     {result.failures} (see failures.jsonl)")
+    print(f"run folder   {outcome.folder.path}")
+    return 0
+
+
+def register(commands) -> None:
+    run = commands.add_parser(
+        "run", help="run one search from a YAML config", description="Run one search from a YAML run config.",
+        epilog=CAUTION,
+    )
+    run.add_argument("config", help="the run config (YAML)")
+    run.add_argument("--seed", type=int, help="override the config's seed")
+    run.add_argument("--out", help="override the output folder (default: the config's 'out', else runs/)")
+    run.add_argument("--set", action="append", metavar="KEY=VALUE",
+                     help="override one config value, e.g. --set search.population=800 (repeatable)")
+    run.add_argument("--quiet", action="store_true", help="no progress line")
+    run.set_defaults(handler=_cmd_run)

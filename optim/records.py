@@ -1,0 +1,177 @@
+"""The run folder: resolved config, per-generation log, result, learned tree.
+
+Layout of ``<out>/<name>-s<seed>-<UTC time>/``:
+
+``config.yaml``
+    The resolved config, every default filled in.
+``log.jsonl``
+    One JSON object per generation (JSON Lines).
+``result.json``
+    The final result.
+``tree.graphml``
+    The last dependency tree or forest (tree and forest methods).
+``trees.jsonl``
+    Each generation's tree edges with their mutual information.
+``failures.jsonl``
+    One JSON object per failed evaluation.
+
+Whole files are written atomically (a temporary file in the same folder,
+flushed and synced, then renamed over the target); a log line is written with
+one ``write`` call and synced, so a crash never leaves a half-written file.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import json
+import os
+import tempfile
+from pathlib import Path
+from typing import Iterable, Optional
+
+import yaml
+
+from optim.errors import RunFolderError
+
+__all__ = ["RunFolder", "atomic_write", "read_jsonl"]
+
+
+def _fsync_folder(folder: Path) -> None:
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
+
+
+def atomic_write(path, data: bytes) -> None:
+    """Replace ``path`` with ``data`` so that readers see the old or the new file, never a mix."""
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(data)
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+    _fsync_folder(path.parent)
+
+
+def read_jsonl(path) -> list:
+    """Records of a JSON Lines file; a torn last line (no newline) is ignored."""
+    path = Path(path)
+    if not path.exists():
+        return []
+    records = []
+    with path.open("r", encoding="utf-8") as handle:
+        for number, line in enumerate(handle, 1):
+            if not line.endswith("\n"):
+                break
+            if line.strip():
+                try:
+                    records.append(json.loads(line))
+                except json.JSONDecodeError as exc:
+                    raise RunFolderError(f"{path}:{number}: not valid JSON ({exc.msg})") from None
+    return records
+
+
+def _json_default(value):
+    import numpy as np
+
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.floating):
+        return float(value)
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    raise TypeError(f"cannot write {type(value).__name__} as JSON")
+
+
+def to_json(value) -> str:
+    return json.dumps(value, default=_json_default, allow_nan=False, separators=(",", ":"))
+
+
+class RunFolder:
+    """One run's folder and the files in it."""
+
+    CONFIG, LOG, RESULT, TREE, TREES, FAILURES = (
+        "config.yaml", "log.jsonl", "result.json", "tree.graphml", "trees.jsonl", "failures.jsonl")
+
+    def __init__(self, path):
+        self.path = Path(path)
+
+    @classmethod
+    def create(cls, out, name: str, seed: int, now: Optional[_dt.datetime] = None) -> "RunFolder":
+        """Make ``<out>/<name>-s<seed>-<UTC time>/`` (a suffix ``-2``, ``-3`` … if it exists)."""
+        now = now or _dt.datetime.now(_dt.timezone.utc)
+        stamp = now.strftime("%Y%m%dT%H%M%SZ")
+        out = Path(out)
+        try:
+            out.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise RunFolderError(f"cannot create the output folder {out}: {exc.strerror or exc}") from None
+        if not os.access(out, os.W_OK | os.X_OK):
+            raise RunFolderError(f"the output folder {out} is not writable")
+        base = f"{name}-s{seed}-{stamp}"
+        for attempt in range(1, 1000):
+            path = out / (base if attempt == 1 else f"{base}-{attempt}")
+            try:
+                path.mkdir()
+                return cls(path)
+            except FileExistsError:
+                continue
+            except OSError as exc:
+                raise RunFolderError(f"cannot create the run folder {path}: {exc.strerror or exc}") from None
+        raise RunFolderError(f"too many run folders named {base} in {out}")
+
+    def file(self, name: str) -> Path:
+        return self.path / name
+
+    def write_config(self, config: dict) -> None:
+        atomic_write(self.file(self.CONFIG), yaml.safe_dump(config, sort_keys=False).encode("utf-8"))
+
+    def write_result(self, result: dict) -> None:
+        atomic_write(self.file(self.RESULT), (json.dumps(result, default=_json_default, indent=2) + "\n").encode())
+
+    def append(self, name: str, records: Iterable[dict]) -> None:
+        """Append records to a JSON Lines file, one ``write`` and one sync for the batch."""
+        lines = "".join(to_json(r) + "\n" for r in records)
+        if not lines:
+            return
+        with self.file(name).open("a", encoding="utf-8") as handle:
+            handle.write(lines)
+            handle.flush()
+            os.fsync(handle.fileno())
+
+    def append_log(self, record: dict) -> None:
+        self.append(self.LOG, [record])
+
+    def write_tree(self, graph) -> None:
+        """Write a networkx graph as GraphML, atomically."""
+        import io
+
+        import networkx as nx
+
+        buffer = io.BytesIO()
+        nx.write_graphml(graph, buffer)
+        atomic_write(self.file(self.TREE), buffer.getvalue())
+
+    def read_log(self) -> list:
+        return read_jsonl(self.file(self.LOG))
+
+    def read_result(self) -> Optional[dict]:
+        path = self.file(self.RESULT)
+        if not path.exists():
+            return None
+        return json.loads(path.read_text(encoding="utf-8"))
