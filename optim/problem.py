@@ -68,6 +68,11 @@ class Problem(abc.ABC):
     #: (cheap and deterministic); ``False`` for per-candidate objectives.
     vectorized = True
 
+    #: How per-candidate evaluations run in parallel: ``"processes"`` for Python
+    #: code that holds the GIL, ``"threads"`` for objectives that wait on other
+    #: programs (external commands).
+    parallel = "processes"
+
     def __init__(
         self,
         n: int,

@@ -41,6 +41,13 @@ PROBLEMS: dict[str, Any] = {
     "four-peaks": "problems.fourpeaks:four_peaks",
     "hiff": "problems.hiff:hiff",
     "ising-ring": "problems.ising:ising_ring",
+    "machine-assignment": "problems.scheduling:machine_assignment",
+    "staff-roster": "problems.rostering:staff_roster",
+    "service-latency": "problems.service_demo:service_latency",
+    "max-sat": "problems.maxsat:max_sat",
+    "max-cut": "problems.maxcut:max_cut",
+    "knapsack": "problems.knapsack:knapsack",
+    "nk": "problems.nk:nk_landscape",
 }
 
 
