@@ -41,6 +41,13 @@ __all__ = [
     "parse_run_config",
     "read_yaml",
     "YamlDocument",
+    "Checker",
+    "integer",
+    "number",
+    "boolean",
+    "text",
+    "choice",
+    "optional",
     "TOP_LEVEL_DEFAULTS",
     "SEARCH_KEYS",
     "STOP_KEYS",
@@ -231,7 +238,7 @@ SEARCH_KEYS: Dict[str, Callable] = {
     "elitism": boolean,
     "alpha": number(0, 1, low_open=True, high_open=True),
     "jobs": integer(1),
-    "cache": boolean,
+    "cache": optional(boolean, "null (the problem decides)"),
 }
 
 #: Validators of the ``stop`` keys; defaults come from StopRules.
@@ -274,7 +281,7 @@ class RunConfig:
         }
 
 
-class _Checker:
+class Checker:
     """Validates one document and raises the first problem as a ConfigError."""
 
     def __init__(self, doc: YamlDocument):
@@ -337,7 +344,7 @@ def _apply_overrides(doc: YamlDocument, overrides: Sequence[str]) -> None:
         doc.overridden.add(tuple(parts))
 
 
-def _check_problem_parameters(checker: _Checker, problem: dict) -> None:
+def _check_problem_parameters(checker: Checker, problem: dict) -> None:
     """For registered problems, check the parameter names against the factory's signature."""
     import problems as registry
 
@@ -366,7 +373,7 @@ def _check_problem_parameters(checker: _Checker, problem: dict) -> None:
 
 def parse_run_config(doc: YamlDocument, path: Optional[Path] = None, check_problem: bool = True) -> RunConfig:
     """Validate a parsed document into a :class:`RunConfig`."""
-    checker = _Checker(doc)
+    checker = Checker(doc)
     data = checker.mapping(doc.data, ())
     checker.unknown(data, _TOP_KEYS, ())
     if "problem" not in data:

@@ -73,6 +73,10 @@ class Problem(abc.ABC):
     #: programs (external commands).
     parallel = "processes"
 
+    #: Whether runs serve repeated candidates from a cache unless the config
+    #: says otherwise (``search.cache``); true for slow deterministic objectives.
+    cache_by_default = False
+
     def __init__(
         self,
         n: int,

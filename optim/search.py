@@ -51,8 +51,9 @@ class SearchSettings:
         Significance level of the forest's edge test.
     jobs : int
         Parallel workers for per-candidate objectives.
-    cache : bool
-        Serve repeated candidates from a cache. The budget still counts every candidate the
+    cache : bool or None
+        Serve repeated candidates from a cache; ``None`` lets the problem decide
+        (``Problem.cache_by_default``, true for external commands). The budget still counts every candidate the
         method asks for, so a cache never changes a run's course; the objective calls saved
         are reported as ``cache_hits`` beside ``objective_calls``.
     """
@@ -64,7 +65,7 @@ class SearchSettings:
     elitism: bool = True
     alpha: float = 0.01
     jobs: int = 1
-    cache: bool = False
+    cache: Optional[bool] = None
 
 
 @dataclass
@@ -158,6 +159,8 @@ class Search:
     evaluator : Evaluator, optional
         Provide one to share a cache or a parallel backend; built from
         ``settings`` otherwise.
+    keep_evaluated : bool
+        Keep every evaluated candidate and its score (see :meth:`evaluated`).
     """
 
     def __init__(
@@ -167,6 +170,7 @@ class Search:
         stop: Optional[StopRules] = None,
         seed: int = 0,
         evaluator: Optional[Evaluator] = None,
+        keep_evaluated: bool = False,
     ):
         self.problem = problem
         self.settings = settings or SearchSettings()
@@ -181,7 +185,11 @@ class Search:
             s.method, problem, self.rng, population=s.population, select=s.select, prior=s.prior,
             elitism=s.elitism, alpha=s.alpha, lookahead=s.jobs,
         )
-        self.evaluator = evaluator or Evaluator(problem, jobs=s.jobs, cache=s.cache)
+        cache = problem.cache_by_default if s.cache is None else s.cache
+        self.evaluator = evaluator or Evaluator(problem, jobs=s.jobs, cache=bool(cache))
+        self.keep_evaluated = bool(keep_evaluated)
+        self._evaluated_candidates: List[np.ndarray] = []
+        self._evaluated_fitness: List[np.ndarray] = []
         self.sign = 1.0 if problem.goal == "maximize" else -1.0
         self.target = _resolve_target(self.stop.target, problem)
         self.generation = 0
@@ -224,6 +232,9 @@ class Search:
         budget = self.stop.evaluations - self.evaluations
         outcome = self.method.step(self._fitness, budget)
         fitness = outcome.fitness
+        if self.keep_evaluated and outcome.evaluations:
+            self._evaluated_candidates.append(outcome.candidates.copy())
+            self._evaluated_fitness.append(fitness.copy())
         before = self.evaluations
         self.evaluations += outcome.evaluations
         if self.evaluations > self.stop.evaluations:
@@ -281,6 +292,23 @@ class Search:
             if on_generation is not None:
                 on_generation(self, record)
         return self.result()
+
+    def evaluated(self):
+        """Every candidate evaluated so far, in order, with its score (needs ``keep_evaluated``).
+
+        Returns ``(candidates, scores, generation)``: arrays of shapes
+        ``(evaluations, n)``, ``(evaluations,)`` and ``(evaluations,)``;
+        failed candidates have a score of ``nan``.
+        """
+        if not self.keep_evaluated:
+            raise RuntimeError("this search was not asked to keep its evaluated candidates")
+        if not self._evaluated_candidates:
+            return (np.zeros((0, self.problem.n), np.uint8), np.zeros(0), np.zeros(0, np.int64))
+        fitness = np.concatenate(self._evaluated_fitness)
+        scores = np.where(np.isfinite(fitness), self.sign * fitness, np.nan)
+        generation = np.concatenate(
+            [np.full(f.shape[0], g, dtype=np.int64) for g, f in enumerate(self._evaluated_fitness)])
+        return np.concatenate(self._evaluated_candidates), scores, generation
 
     def result(self) -> SearchResult:
         """The outcome so far (complete once :attr:`finished`)."""
