@@ -14,6 +14,9 @@ Layout of ``<out>/<name>-s<seed>-<UTC time>/``:
     Each generation's tree edges with their mutual information.
 ``failures.jsonl``
     One JSON object per failed evaluation.
+``evaluated.npz``
+    Every evaluated candidate (``candidates``, uint8), its score (``scores``,
+    nan where the evaluation failed) and its generation (``generation``).
 
 Whole files are written atomically (a temporary file in the same folder,
 flushed and synced, then renamed over the target); a log line is written with
@@ -105,8 +108,9 @@ def to_json(value) -> str:
 class RunFolder:
     """One run's folder and the files in it."""
 
-    CONFIG, LOG, RESULT, TREE, TREES, FAILURES = (
-        "config.yaml", "log.jsonl", "result.json", "tree.graphml", "trees.jsonl", "failures.jsonl")
+    CONFIG, LOG, RESULT, TREE, TREES, FAILURES, EVALUATED = (
+        "config.yaml", "log.jsonl", "result.json", "tree.graphml", "trees.jsonl", "failures.jsonl",
+        "evaluated.npz")
 
     def __init__(self, path):
         self.path = Path(path)
@@ -166,6 +170,26 @@ class RunFolder:
         buffer = io.BytesIO()
         nx.write_graphml(graph, buffer)
         atomic_write(self.file(self.TREE), buffer.getvalue())
+
+    def write_evaluated(self, candidates, scores, generation) -> None:
+        """Write every evaluated candidate with its score and generation (compressed .npz), atomically."""
+        import io
+
+        import numpy as np
+
+        buffer = io.BytesIO()
+        np.savez_compressed(buffer, candidates=candidates, scores=scores, generation=generation)
+        atomic_write(self.file(self.EVALUATED), buffer.getvalue())
+
+    def read_evaluated(self):
+        """``(candidates, scores, generation)`` from ``evaluated.npz``, or ``None`` if absent."""
+        import numpy as np
+
+        path = self.file(self.EVALUATED)
+        if not path.exists():
+            return None
+        with np.load(path, allow_pickle=False) as data:
+            return data["candidates"], data["scores"], data["generation"]
 
     def read_log(self) -> list:
         return read_jsonl(self.file(self.LOG))

@@ -63,7 +63,7 @@ def execute(
     resolved["problem_summary"] = problem.describe()
     resolved["version"] = __version__
     folder.write_config(resolved)
-    search = Search(problem, config.search, config.stop, seed=config.seed)
+    search = Search(problem, config.search, config.stop, seed=config.seed, keep_evaluated=True)
 
     def record(s: Search, entry: dict) -> None:
         folder.append_log(entry)
@@ -82,6 +82,7 @@ def execute(
     summary["problem"] = problem.name
     summary["variable_names"] = problem.variable_names
     folder.write_result(summary)
+    folder.write_evaluated(*search.evaluated())
     if result.model is not None and hasattr(result.model, "to_networkx"):
         folder.write_tree(result.model.to_networkx(problem.variable_names))
     return RunOutcome(result, folder, problem)

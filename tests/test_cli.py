@@ -47,6 +47,11 @@ def test_run_writes_a_complete_run_folder(tmp_path, capsys):
     assert result["evaluations"] == log[-1]["evaluations"] and result["generations"] == len(log)
     for key in ("evaluations", "generations", "seed", "version"):
         assert key in result
+    from optim.records import RunFolder
+
+    candidates, scores, generation = RunFolder(folder).read_evaluated()
+    assert candidates.shape == (result["evaluations"], 24) and scores.shape == (result["evaluations"],)
+    assert scores.max() == 24 and generation.max() == result["generations"] - 1
     tree = nx.read_graphml(folder / "tree.graphml", node_type=int)
     assert nx.is_tree(tree) and tree.number_of_nodes() == 24
 
