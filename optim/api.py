@@ -29,6 +29,7 @@ def optimize(
     target="optimum",
     patience: Optional[int] = None,
     collapse: bool = True,
+    max_failures: Optional[float] = StopRules.max_failures,
     seed: int = 0,
     on_generation=None,
 ) -> SearchResult:
@@ -52,7 +53,8 @@ def optimize(
                                   vectorized=vectorized)
     settings = SearchSettings(method=method, population=population, select=select, prior=prior,
                               elitism=elitism, alpha=alpha, jobs=jobs, cache=cache)
-    stop = StopRules(evaluations=budget, target=target, patience=patience, collapse=collapse)
+    stop = StopRules(evaluations=budget, target=target, patience=patience, collapse=collapse,
+                     max_failures=max_failures)
     return Search(problem, settings, stop, seed=seed).run(on_generation)
 
 

@@ -35,8 +35,10 @@ def main(argv: Optional[List[str]] = None) -> int:
     try:
         return args.handler(args)
     except OptimError as exc:
-        print(f"optim: error: {exc}", file=sys.stderr)
-        return 2
+        status = getattr(exc, "exit_status", 2)
+        label = "stopped" if status != 2 else "error"
+        print(f"optim: {label}: {exc}", file=sys.stderr)
+        return status
     except KeyboardInterrupt:
         print("optim: interrupted", file=sys.stderr)
         return 130

@@ -54,7 +54,7 @@ __all__ = [
 ]
 
 #: Defaults of the top-level keys (``name`` defaults to the config file's stem).
-TOP_LEVEL_DEFAULTS = {"seed": 0, "out": "runs"}
+TOP_LEVEL_DEFAULTS = {"seed": 0, "out": "runs", "checkpoint_every": 1}
 
 _E_NOTATION = re.compile(r"^[-+]?(\d+\.?\d*|\.\d+)[eE][-+]?\d+$")
 
@@ -229,6 +229,15 @@ def _target(value):
         raise _Bad("a number, 'optimum' (the problem's known optimum) or null (no target)") from None
 
 
+def _failure_limit(value):
+    expected = "a whole number of failures (>= 1) or a fraction of the evaluations in [0, 1)"
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or value != value or value < 0:
+        raise _Bad(expected)
+    if value >= 1 and not float(value).is_integer():
+        raise _Bad(expected)
+    return int(value) if value >= 1 else float(value)
+
+
 #: Validators of the ``search`` keys; defaults come from SearchSettings.
 SEARCH_KEYS: Dict[str, Callable] = {
     "method": choice(METHODS),
@@ -247,9 +256,10 @@ STOP_KEYS: Dict[str, Callable] = {
     "target": _target,
     "patience": optional(integer(1)),
     "collapse": boolean,
+    "max_failures": optional(_failure_limit),
 }
 
-_TOP_KEYS = ("name", "problem", "search", "stop", "seed", "out")
+_TOP_KEYS = ("name", "problem", "search", "stop", "seed", "out", "checkpoint_every")
 
 
 @dataclass
@@ -262,6 +272,7 @@ class RunConfig:
     stop: StopRules
     seed: int = 0
     out: str = "runs"
+    checkpoint_every: int = 1
     path: Optional[Path] = None
 
     @property
@@ -278,6 +289,7 @@ class RunConfig:
             "stop": dataclasses.asdict(self.stop),
             "seed": self.seed,
             "out": self.out,
+            "checkpoint_every": self.checkpoint_every,
         }
 
 
@@ -405,11 +417,14 @@ def parse_run_config(doc: YamlDocument, path: Optional[Path] = None, check_probl
 
     seed = checker.value(integer(0), data.get("seed", TOP_LEVEL_DEFAULTS["seed"]), ("seed",))
     out = checker.value(text, data.get("out", TOP_LEVEL_DEFAULTS["out"]), ("out",))
+    every = checker.value(integer(0), data.get("checkpoint_every", TOP_LEVEL_DEFAULTS["checkpoint_every"]),
+                          ("checkpoint_every",))
     default_name = path.stem if path is not None else "run"
     name = checker.value(text, data.get("name", default_name), ("name",))
     if re.search(r"[/\\\0]", name):
         checker.fail(("name",), f"expected a name usable in a folder name (no slashes); found {name!r}")
-    return RunConfig(name=name, problem=problem, search=search, stop=stop, seed=seed, out=out, path=path)
+    return RunConfig(name=name, problem=problem, search=search, stop=stop, seed=seed, out=out,
+                     checkpoint_every=every, path=path)
 
 
 def load_run_config(path, overrides: Sequence[str] = (), check_problem: bool = True) -> RunConfig:

@@ -119,6 +119,26 @@ class Evaluator:
     def __post_init__(self):
         self.worst = -np.inf if self.problem.goal == "maximize" else np.inf
 
+    def get_state(self) -> dict:
+        """Counters and the cache, for checkpoints (pending failures must be taken first)."""
+        state = {"calls": self.calls, "cache_hits": self.cache_hits, "failure_count": self.failure_count}
+        if self._cache:
+            keys = list(self._cache)
+            state["cache_keys"] = np.frombuffer(b"".join(keys), dtype=np.uint8).reshape(len(keys), -1)
+            state["cache_values"] = np.array([self._cache[k] for k in keys], dtype=np.float64)
+        return state
+
+    def set_state(self, state: dict) -> None:
+        self.calls = int(state["calls"])
+        self.cache_hits = int(state["cache_hits"])
+        self.failure_count = int(state["failure_count"])
+        self.failures = []
+        self._cache = {}
+        if "cache_keys" in state:
+            keys = np.asarray(state["cache_keys"], dtype=np.uint8)
+            for row, value in zip(keys, np.asarray(state["cache_values"], dtype=np.float64)):
+                self._cache[row.tobytes()] = float(value)
+
     def take_failures(self) -> List[Failure]:
         """Return and forget the faults recorded since the last call."""
         out, self.failures = self.failures, []

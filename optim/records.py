@@ -16,7 +16,14 @@ Layout of ``<out>/<name>-s<seed>-<UTC time>/``:
     One JSON object per failed evaluation.
 ``evaluated.npz``
     Every evaluated candidate (``candidates``, uint8), its score (``scores``,
-    nan where the evaluation failed) and its generation (``generation``).
+    nan where the evaluation failed) and its generation (``generation``);
+    while the run is going on, ``evaluated.part`` collects the same records
+    (fixed-size binary rows, appended once per generation).
+``run.json``
+    Facts about the run: optim version, the config file it came from, the
+    problem's summary.
+``checkpoint.npz``
+    The state to continue from (see :mod:`optim.checkpoint`).
 
 Whole files are written atomically (a temporary file in the same folder,
 flushed and synced, then renamed over the target); a log line is written with
@@ -111,6 +118,9 @@ class RunFolder:
     CONFIG, LOG, RESULT, TREE, TREES, FAILURES, EVALUATED = (
         "config.yaml", "log.jsonl", "result.json", "tree.graphml", "trees.jsonl", "failures.jsonl",
         "evaluated.npz")
+    EVALUATED_PART, INFO, CHECKPOINT = "evaluated.part", "run.json", "checkpoint.npz"
+    #: JSON Lines files whose records carry a ``generation`` and are cut back on resume.
+    PER_GENERATION = (LOG, TREES, FAILURES)
 
     def __init__(self, path):
         self.path = Path(path)
@@ -180,6 +190,87 @@ class RunFolder:
         buffer = io.BytesIO()
         np.savez_compressed(buffer, candidates=candidates, scores=scores, generation=generation)
         atomic_write(self.file(self.EVALUATED), buffer.getvalue())
+
+    @staticmethod
+    def _evaluated_dtype(n: int):
+        import numpy as np
+
+        return np.dtype([("candidate", np.uint8, (n,)), ("score", "<f8"), ("generation", "<i4")])
+
+    def append_evaluated(self, candidates, scores, generation: int) -> None:
+        """Append one generation's candidates and scores to ``evaluated.part`` (synced)."""
+        import numpy as np
+
+        rows = np.empty(len(scores), dtype=self._evaluated_dtype(candidates.shape[1]))
+        rows["candidate"], rows["score"], rows["generation"] = candidates, scores, generation
+        with self.file(self.EVALUATED_PART).open("ab") as handle:
+            handle.write(rows.tobytes())
+            handle.flush()
+            os.fsync(handle.fileno())
+
+    def read_evaluated_part(self, n: int):
+        """``(candidates, scores, generation)`` collected so far in ``evaluated.part``."""
+        import numpy as np
+
+        dtype = self._evaluated_dtype(n)
+        path = self.file(self.EVALUATED_PART)
+        raw = path.read_bytes() if path.exists() else b""
+        rows = np.frombuffer(raw[: len(raw) // dtype.itemsize * dtype.itemsize], dtype=dtype)
+        return rows["candidate"].copy(), rows["score"].copy(), rows["generation"].astype(np.int64)
+
+    def finish_evaluated(self, n: int) -> None:
+        """Turn ``evaluated.part`` into ``evaluated.npz`` (then remove the part file)."""
+        self.write_evaluated(*self.read_evaluated_part(n))
+        try:
+            self.file(self.EVALUATED_PART).unlink()
+        except FileNotFoundError:
+            pass
+
+    def cut_back(self, generation: int, evaluated_rows: int, n: int) -> None:
+        """Forget everything recorded for generations >= ``generation`` (before a resume).
+
+        JSON Lines files are rewritten atomically with the earlier records only,
+        and ``evaluated.part`` is truncated to its first ``evaluated_rows`` rows.
+        """
+        for name in self.PER_GENERATION:
+            path = self.file(name)
+            if not path.exists():
+                continue
+            records = read_jsonl(path)
+            kept = [r for r in records if r.get("generation", -1) < generation]
+            if len(kept) != len(records) or not path.read_bytes().endswith(b"\n"):
+                atomic_write(path, "".join(to_json(r) + "\n" for r in kept).encode("utf-8"))
+        part = self.file(self.EVALUATED_PART)
+        size = evaluated_rows * self._evaluated_dtype(n).itemsize
+        if part.exists():
+            if part.stat().st_size < size:
+                raise RunFolderError(f"{part} holds fewer records than the checkpoint expects; the folder is damaged")
+            with part.open("r+b") as handle:
+                handle.truncate(size)
+                handle.flush()
+                os.fsync(handle.fileno())
+        elif evaluated_rows:
+            raise RunFolderError(f"{part} is missing; the folder is damaged")
+
+    def remove_stale_temporaries(self) -> None:
+        """Delete temporary files left by an atomic write that was killed before its rename."""
+        for leftover in self.path.glob(".*.tmp"):
+            try:
+                leftover.unlink()
+            except OSError:
+                pass
+
+    def write_info(self, info: dict) -> None:
+        atomic_write(self.file(self.INFO), (json.dumps(info, default=_json_default, indent=2) + "\n").encode())
+
+    def read_info(self) -> dict:
+        path = self.file(self.INFO)
+        try:
+            return json.loads(path.read_text(encoding="utf-8"))
+        except FileNotFoundError:
+            raise RunFolderError(f"{self.path} is not a run folder (no {self.INFO})") from None
+        except json.JSONDecodeError as exc:
+            raise RunFolderError(f"{path}:{exc.lineno}: not valid JSON ({exc.msg})") from None
 
     def read_evaluated(self):
         """``(candidates, scores, generation)`` from ``evaluated.npz``, or ``None`` if absent."""

@@ -28,6 +28,7 @@ STOP_REASONS = {
     "budget": "used the whole evaluation budget",
     "patience": "no improvement for `patience` generations",
     "collapsed": "the selected candidates became identical (the model collapsed)",
+    "failures": "too many evaluations failed (stop.max_failures); the objective looks broken",
 }
 
 
@@ -83,12 +84,17 @@ class StopRules:
         Stop after this many generations without improvement of the best score.
     collapse : bool
         Stop when the selected candidates are all identical.
+    max_failures : float or None
+        Stop when more evaluations than this have failed: a whole number >= 1 is
+        a count, a number below 1 a fraction of the evaluations so far (checked
+        from the 20th evaluation on); ``None`` never stops for failures.
     """
 
     evaluations: int = 100_000
     target: Union[float, str, None] = "optimum"
     patience: Optional[int] = None
     collapse: bool = True
+    max_failures: Optional[float] = 0.5
 
 
 @dataclass
@@ -117,7 +123,7 @@ class SearchResult:
     def to_dict(self) -> dict:
         """The JSON-friendly summary written as ``result.json``."""
         return {
-            "best_score": self.best_score,
+            "best_score": self.best_score if np.isfinite(self.best_score) else None,
             "best_solution": self.solution_text,
             "evaluations": self.evaluations,
             "generations": self.generations,
@@ -202,6 +208,8 @@ class Search:
         self.history: List[dict] = []
         self.elapsed = 0.0
         self._evaluate_seconds = 0.0
+        self.last_candidates = np.zeros((0, problem.n), dtype=np.uint8)
+        self.last_scores = np.zeros(0)
 
     # -- the goal lives here ------------------------------------------------------------------
     def _fitness(self, X: np.ndarray) -> np.ndarray:
@@ -232,6 +240,8 @@ class Search:
         budget = self.stop.evaluations - self.evaluations
         outcome = self.method.step(self._fitness, budget)
         fitness = outcome.fitness
+        self.last_candidates = outcome.candidates
+        self.last_scores = np.where(np.isfinite(fitness), self.sign * fitness, np.nan)
         if self.keep_evaluated and outcome.evaluations:
             self._evaluated_candidates.append(outcome.candidates.copy())
             self._evaluated_fitness.append(fitness.copy())
@@ -283,6 +293,12 @@ class Search:
             return "patience"
         if self.stop.collapse and self.method.converged:
             return "collapsed"
+        limit, failed = self.stop.max_failures, self.evaluator.failure_count
+        if limit is not None and failed:
+            if limit >= 1 and failed > limit:
+                return "failures"
+            if limit < 1 and self.evaluations >= 20 and failed > limit * self.evaluations:
+                return "failures"
         return None
 
     def run(self, on_generation: Optional[Callable[["Search", dict], None]] = None) -> SearchResult:
@@ -331,6 +347,43 @@ class Search:
             cache_hits=self.evaluator.cache_hits,
             objective_calls=self.evaluator.calls,
         )
+
+    # -- checkpoints ----------------------------------------------------------------------------
+    def get_state(self) -> dict:
+        """Everything needed to continue this search exactly (nested dicts of arrays and plain values).
+
+        The evaluated-candidate archive kept with ``keep_evaluated`` is not included.
+        """
+        return {
+            "generation": self.generation,
+            "evaluations": self.evaluations,
+            "best_fitness": float(self.best_fitness),
+            "best_solution": None if self.best_solution is None else self.best_solution.copy(),
+            "evaluations_to_target": self.evaluations_to_target,
+            "stale_generations": self.stale_generations,
+            "stop_reason": self.stop_reason,
+            "history": [dict(r) for r in self.history],
+            "elapsed": self.elapsed,
+            "rng": self.rng.bit_generator.state,
+            "method": self.method.get_state(),
+            "evaluator": self.evaluator.get_state(),
+        }
+
+    def set_state(self, state: dict) -> None:
+        """Restore what :meth:`get_state` returned (into a Search built with the same settings)."""
+        self.generation = int(state["generation"])
+        self.evaluations = int(state["evaluations"])
+        self.best_fitness = float(state["best_fitness"])
+        best = state.get("best_solution")
+        self.best_solution = None if best is None else np.asarray(best, dtype=np.uint8)
+        self.evaluations_to_target = state["evaluations_to_target"]
+        self.stale_generations = int(state["stale_generations"])
+        self.stop_reason = state["stop_reason"]
+        self.history = [dict(r) for r in state["history"]]
+        self.elapsed = float(state["elapsed"])
+        self.rng.bit_generator.state = state["rng"]
+        self.method.set_state(state["method"])
+        self.evaluator.set_state(state["evaluator"])
 
     def settings_dict(self) -> dict:
         return {"search": asdict(self.settings), "stop": asdict(self.stop), "seed": self.seed}

@@ -142,7 +142,8 @@ def test_failures_are_scored_worst_and_counted():
             return float("nan")
         return float(x.sum())
 
-    result = optim.maximize(fragile, n=6, population=20, budget=200, target=None, collapse=False, seed=1)
+    result = optim.maximize(fragile, n=6, population=20, budget=200, target=None, collapse=False,
+                            max_failures=None, seed=1)
     assert result.failures > 0
     assert not (result.best_solution[0] == 1 and result.best_solution[1] == 1)
     assert result.evaluations == 200
@@ -159,3 +160,14 @@ def test_cache_serves_repeats_and_is_reported():
     assert result.cache_hits > 0
     assert len(calls) + result.cache_hits == result.evaluations
     assert len(calls) <= 16  # only 16 distinct candidates exist
+
+
+def test_a_broken_objective_stops_the_run_with_a_clear_reason():
+    def broken(x):
+        raise OSError("the simulator binary is missing")
+
+    result = optim.maximize(broken, n=5, population=10, budget=1000, seed=1)
+    assert result.stop_reason == "failures"
+    assert result.evaluations < 1000 and result.failures == result.evaluations
+    counted = optim.maximize(broken, n=5, population=10, budget=1000, max_failures=3, seed=1)
+    assert counted.stop_reason == "failures" and counted.failures == 10  # stops after the first generation (10 > 3)

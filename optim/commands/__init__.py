@@ -3,5 +3,6 @@
 #: Modules whose ``register`` adds a subcommand, in the order ``optim --help`` lists them.
 COMMAND_MODULES = (
     "optim.commands.run",
+    "optim.commands.resume",
     "optim.commands.problems",
 )

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import time
 
-__all__ = ["CAUTION", "Progress"]
+__all__ = ["CAUTION", "Progress", "print_run_summary"]
 
 CAUTION = (
     "Caution: an objective can be any program or Python code you point the config at. optim runs it "
@@ -27,6 +27,7 @@ class Progress:
     def update(self, search, record: dict, force: bool = False) -> None:
         if self.quiet:
             return
+        self.budget = search.stop.evaluations
         now = time.monotonic()
         if not force and now - self.last < self.interval:
             return
@@ -50,7 +51,32 @@ class Progress:
             self.stream.write(line + "\n")
         self.stream.flush()
 
+    def started(self, folder) -> None:
+        if not self.quiet:
+            self.stream.write(f"run folder {folder.path}\n")
+            self.stream.flush()
+
     def close(self) -> None:
         if self.tty and self.width and not self.quiet:
             self.stream.write("\n")
             self.stream.flush()
+
+
+def print_run_summary(outcome) -> None:
+    """The lines ``optim run`` and ``optim resume`` end with."""
+    from optim.search import STOP_REASONS
+
+    result, problem = outcome.result, outcome.problem
+    reason = STOP_REASONS.get(result.stop_reason, result.stop_reason)
+    print(f"best score   {result.best_score:.10g}  ({problem.goal}; stopped because it {reason})"
+          if result.stop_reason in ("target", "budget") else
+          f"best score   {result.best_score:.10g}  ({problem.goal}; stopped: {reason})")
+    if problem.optimum is not None:
+        print(f"optimum      {problem.optimum:.10g}  ({problem.optimum_source or 'known'})")
+    print(f"solution     {result.solution_text}")
+    print(f"evaluations  {result.evaluations:,} in {result.generations} generations"
+          + (f", target first reached at {result.evaluations_to_target:,}"
+             if result.evaluations_to_target is not None else ""))
+    if result.failures:
+        print(f"failures     {result.failures} (see failures.jsonl)")
+    print(f"run folder   {outcome.folder.path}")

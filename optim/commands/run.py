@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import sys
 
-from optim.commands._common import CAUTION, Progress
+from optim.commands._common import CAUTION, Progress, print_run_summary
 
 __all__ = ["register"]
 
@@ -22,26 +22,10 @@ def _cmd_run(args) -> int:
     problem = build_problem(config)
     progress = Progress(sys.stderr, config.stop.evaluations, quiet=args.quiet)
     try:
-        outcome = execute(config, problem, on_generation=progress.update)
+        outcome = execute(config, problem, on_generation=progress.update, on_start=progress.started)
     finally:
         progress.close()
-    result = outcome.result
-    reason = {
-        "target": "reached the target",
-        "budget": "used the evaluation budget",
-        "patience": "no improvement within the patience",
-        "collapsed": "the model collapsed",
-    }.get(result.stop_reason, result.stop_reason)
-    print(f"best score   {result.best_score:.10g}  ({problem.goal}, {reason})")
-    if problem.optimum is not None:
-        print(f"optimum      {problem.optimum:.10g}  ({problem.optimum_source or 'known'})")
-    print(f"solution     {result.solution_text}")
-    print(f"evaluations  {result.evaluations:,} in {result.generations} generations"
-          + (f", target first reached at {result.evaluations_to_target:,}"
-             if result.evaluations_to_target is not None else ""))
-    if result.failures:
-        print(f"failures     {result.failures} (see failures.jsonl)")
-    print(f"run folder   {outcome.folder.path}")
+    print_run_summary(outcome)
     return 0
 
 
