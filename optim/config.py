@@ -332,6 +332,8 @@ class Checker:
 
 def _apply_overrides(doc: YamlDocument, overrides: Sequence[str]) -> None:
     """Apply ``KEY.PATH=VALUE`` overrides (values parsed as YAML scalars) to ``doc.data``."""
+    if doc.data is not None and not isinstance(doc.data, dict):
+        return  # the document itself is wrong; validation says so
     for item in overrides:
         if "=" not in item:
             raise ConfigError(f"expected KEY=VALUE, e.g. search.population=800; found {item!r}", "--set")
@@ -389,7 +391,7 @@ def parse_run_config(doc: YamlDocument, path: Optional[Path] = None, check_probl
     data = checker.mapping(doc.data, ())
     checker.unknown(data, _TOP_KEYS, ())
     if "problem" not in data:
-        checker.fail((), "the config has no 'problem' section; add e.g.\n  problem:\n    use: onemax\n    n: 100")
+        checker.fail((), "the config has no 'problem' section; add one, e.g. 'problem: {use: onemax, n: 100}'")
     problem = dict(checker.mapping(data["problem"], ("problem",)))
     if "use" not in problem:
         checker.fail(("problem",), "the 'problem' section needs a 'use' key naming a registered problem, "

@@ -84,7 +84,7 @@ def test_bad_configs_name_file_line_key_and_expectation(tmp_path, text, line, ke
     if key:
         assert f"'{key}'" in message
     assert fragment in message
-    assert "\n" not in message.split(": ", 1)[1] or "problem" in fragment
+    assert "\n" not in message
 
 
 def test_missing_file_and_bad_override(tmp_path):
