@@ -59,11 +59,18 @@ def _fsync_folder(folder: Path) -> None:
         os.close(fd)
 
 
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 def atomic_write(path, data: bytes) -> None:
     """Replace ``path`` with ``data`` so that readers see the old or the new file, never a mix."""
     path = Path(path)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
+        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; give the file the usual permissions
         with os.fdopen(fd, "wb") as handle:
             handle.write(data)
             handle.flush()

@@ -5,4 +5,6 @@ COMMAND_MODULES = (
     "optim.commands.run",
     "optim.commands.resume",
     "optim.commands.problems",
+    "optim.commands.sweep",
+    "optim.commands.report",
 )
