@@ -7,4 +7,5 @@ COMMAND_MODULES = (
     "optim.commands.problems",
     "optim.commands.sweep",
     "optim.commands.report",
+    "optim.commands.explain",
 )
