@@ -68,10 +68,14 @@ def _tree_edges_record(generation: int, model) -> Optional[dict]:
     if model is None or not hasattr(model, "edges"):
         return None
     edges = model.edges()
-    return {
+    record = {
         "generation": generation,
         "edges": [[int(p), int(c), round(float(model.edge_information[c]), 8)] for p, c in edges],
     }
+    fit_sample = getattr(model, "_fit_sample", None)  # the survivors the tree was fitted on (optim explain's N)
+    if fit_sample is not None:
+        record["fitted_on"] = int(fit_sample[0].shape[0])
+    return record
 
 
 class _SignalGuard:
