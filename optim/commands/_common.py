@@ -80,3 +80,12 @@ def print_run_summary(outcome) -> None:
     if result.failures:
         print(f"failures     {result.failures} (see failures.jsonl)")
     print(f"run folder   {outcome.folder.path}")
+    from optim.errors import OptimError
+    from optim.explain import run_summary
+
+    try:
+        lines = run_summary(outcome.folder.path)
+    except OptimError as exc:  # a summary that cannot be made never fails the finished run
+        lines = [f"(no summary: {exc})"]
+    for line in lines:
+        print(line)
