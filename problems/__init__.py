@@ -48,6 +48,7 @@ PROBLEMS: dict[str, Any] = {
     "max-cut": "problems.maxcut:max_cut",
     "knapsack": "problems.knapsack:knapsack",
     "nk": "problems.nk:nk_landscape",
+    "command": "problems.command:command",
 }
 
 

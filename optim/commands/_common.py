@@ -73,6 +73,9 @@ def print_run_summary(outcome) -> None:
           f"best score   {result.best_score:.10g}  ({problem.goal}; stopped: {reason})")
     if problem.optimum is not None:
         print(f"optimum      {problem.optimum:.10g}  ({problem.optimum_source or 'known'})")
+    start = _first_start_score(outcome)
+    if start is not None:
+        print(f"vs start     {_compare_with_start(result.best_score, start, problem.goal)}")
     print(f"solution     {result.solution_text}")
     print(f"evaluations  {result.evaluations:,} in {result.generations} generations"
           + (f", target first reached at {result.evaluations_to_target:,}"
@@ -89,3 +92,29 @@ def print_run_summary(outcome) -> None:
         lines = [f"(no summary: {exc})"]
     for line in lines:
         print(line)
+
+
+def _first_start_score(outcome):
+    """The score of the problem's first starting candidate in this run, or None if it has none or it failed."""
+    import numpy as np
+
+    start = outcome.problem.initial_candidates()
+    evaluated = outcome.folder.read_evaluated()
+    if start is None or len(start) == 0 or evaluated is None:
+        return None
+    candidates, scores, _ = evaluated
+    first = np.asarray(start, dtype=np.uint8).reshape(-1, outcome.problem.n)[0]
+    where = np.flatnonzero(np.all(candidates == first, axis=1))
+    if where.size == 0 or not np.isfinite(scores[where[0]]):
+        return None
+    return float(scores[where[0]])
+
+
+def _compare_with_start(best: float, start: float, goal: str) -> str:
+    """How the best score compares with the first starting candidate's, in words."""
+    gain = start - best if goal == "minimize" else best - start
+    if gain <= 0:
+        return f"{start:.10g} (the first starting candidate); the search found nothing better"
+    word = "smaller" if goal == "minimize" else "larger"
+    share = f" ({100 * gain / abs(start):.1f} %)" if start != 0 else ""
+    return f"{start:.10g} (the first starting candidate); the best is {gain:.10g}{share} {word}"

@@ -61,6 +61,13 @@ class HillClimber(Method):
         X[rows, var] = ((X[rows, var].astype(np.int64) + self._move_offset[moves]) % card).astype(np.uint8)
         return X
 
+    def _starting_point(self) -> np.ndarray:
+        """The problem's first known configuration for the first climb, uniform random points after that."""
+        given = self.problem.initial_candidates() if self.restarts == 0 else None
+        if given is not None and len(given):
+            return np.asarray(given, dtype=np.uint8).reshape(-1, self.problem.n)[:1].copy()
+        return uniform_candidates(self.problem, 1, self.rng)
+
     def _adopt(self, x: np.ndarray, f: float):
         self.current, self.current_fitness = x.copy(), float(f)
         self.order = self.rng.permutation(self._move_variable.shape[0])
@@ -74,7 +81,7 @@ class HillClimber(Method):
         batch = 8
         while used < limit:
             if self.current is None:
-                x = uniform_candidates(self.problem, 1, self.rng)
+                x = self._starting_point()
                 f = fitness(x)
                 used_X.append(x)
                 used_f.append(f)
