@@ -24,7 +24,9 @@ def optimize(
     elitism: bool = SearchSettings.elitism,
     alpha: float = SearchSettings.alpha,
     jobs: int = SearchSettings.jobs,
-    cache: bool = SearchSettings.cache,
+    cache: Optional[bool] = SearchSettings.cache,
+    timeout: Optional[float] = SearchSettings.timeout,
+    dask: Optional[str] = SearchSettings.dask,
     budget: int = StopRules.evaluations,
     target="optimum",
     patience: Optional[int] = None,
@@ -52,10 +54,12 @@ def optimize(
         problem = FunctionProblem(objective, n, cardinality=cardinality, goal=goal or "maximize",
                                   vectorized=vectorized)
     settings = SearchSettings(method=method, population=population, select=select, prior=prior,
-                              elitism=elitism, alpha=alpha, jobs=jobs, cache=cache)
+                              elitism=elitism, alpha=alpha, jobs=jobs, cache=cache, timeout=timeout, dask=dask)
     stop = StopRules(evaluations=budget, target=target, patience=patience, collapse=collapse,
                      max_failures=max_failures)
-    return Search(problem, settings, stop, seed=seed).run(on_generation)
+    search = Search(problem, settings, stop, seed=seed)
+    with search.evaluator:  # worker processes or a cluster connection live as long as the search
+        return search.run(on_generation)
 
 
 def maximize(objective, n=None, method: str = "tree", **options) -> SearchResult:

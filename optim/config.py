@@ -248,6 +248,8 @@ SEARCH_KEYS: Dict[str, Callable] = {
     "alpha": number(0, 1, low_open=True, high_open=True),
     "jobs": integer(1),
     "cache": optional(boolean, "null (the problem decides)"),
+    "timeout": optional(number(0, low_open=True), "null (no limit)"),
+    "dask": optional(text, "null (evaluate on this machine)"),
 }
 
 #: Validators of the ``stop`` keys; defaults come from StopRules.

@@ -14,6 +14,7 @@ from optim.config import RunConfig
 from optim.errors import ConfigError, OptimError, RunFolderError
 from optim.records import RunFolder
 from optim.search import Search, SearchResult
+from optim.workers import WorkerError
 
 __all__ = ["build_problem", "execute", "resume", "RunOutcome", "Interrupted"]
 
@@ -124,7 +125,7 @@ def _checkpoint(folder: RunFolder, state: dict, rows: int) -> None:
 def _drive(search: Search, folder: RunFolder, problem, every: int, rows: int,
            on_generation: Optional[Callable]) -> RunOutcome:
     """The loop shared by new and resumed runs: step, record, checkpoint, stop cleanly on signals."""
-    with _SignalGuard() as guard:
+    with _SignalGuard() as guard, search.evaluator:  # the evaluator's workers live as long as this loop
         while not search.finished and guard.received is None:
             before = search.get_state()
             try:
@@ -135,6 +136,11 @@ def _drive(search: Search, folder: RunFolder, problem, every: int, rows: int,
                 search.evaluator.take_failures()
                 _checkpoint(folder, before, rows)
                 raise Interrupted(guard.received, folder) from None
+            except WorkerError as exc:  # e.g. the Dask scheduler was lost: keep what came before this step
+                search.evaluator.take_failures()
+                _checkpoint(folder, before, rows)
+                raise type(exc)(f"{exc}; checkpoint saved. Continue with: optim resume "
+                                f"{shlex.quote(str(folder.path))}") from None
             finally:
                 guard.in_step = False
             folder.append_evaluated(search.last_candidates, search.last_scores, entry["generation"])

@@ -57,6 +57,12 @@ class SearchSettings:
         (``Problem.cache_by_default``, true for external commands). The budget still counts every candidate the
         method asks for, so a cache never changes a run's course; the objective calls saved
         are reported as ``cache_hits`` beside ``objective_calls``.
+    timeout : float or None
+        Seconds one per-candidate evaluation may take; a longer one is stopped and recorded as a
+        ``timeout`` failure (the evaluations then run in worker processes, even with ``jobs = 1``).
+    dask : str or None
+        Evaluate on a Dask cluster: a scheduler address (``tcp://host:8786``) or ``"local"`` for a
+        local cluster of ``max(jobs, 2)`` workers that lives as long as the run.
     """
 
     method: str = "tree"
@@ -67,6 +73,8 @@ class SearchSettings:
     alpha: float = 0.01
     jobs: int = 1
     cache: Optional[bool] = None
+    timeout: Optional[float] = None
+    dask: Optional[str] = None
 
 
 @dataclass
@@ -192,7 +200,8 @@ class Search:
             elitism=s.elitism, alpha=s.alpha, lookahead=s.jobs,
         )
         cache = problem.cache_by_default if s.cache is None else s.cache
-        self.evaluator = evaluator or Evaluator(problem, jobs=s.jobs, cache=bool(cache))
+        self.evaluator = evaluator or Evaluator(problem, jobs=s.jobs, cache=bool(cache), timeout=s.timeout,
+                                                dask=s.dask)
         self.keep_evaluated = bool(keep_evaluated)
         self._evaluated_candidates: List[np.ndarray] = []
         self._evaluated_fitness: List[np.ndarray] = []

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import sys
 
 from optim.commands._common import CAUTION, Progress, print_run_summary
@@ -18,6 +19,10 @@ def _cmd_run(args) -> int:
         overrides.append(f"seed={args.seed}")
     if args.out is not None:
         overrides.append(f"out={args.out}")
+    if args.jobs is not None:
+        overrides.append(f"search.jobs={args.jobs}")
+    if args.dask is not None:
+        overrides.append(f"search.dask={json.dumps(args.dask)}")  # quoted: an address is never read as a number
     config = load_run_config(args.config, overrides)
     problem = build_problem(config)
     progress = Progress(sys.stderr, config.stop.evaluations, quiet=args.quiet)
@@ -39,5 +44,10 @@ def register(commands) -> None:
     run.add_argument("--out", help="override the output folder (default: the config's 'out', else runs/)")
     run.add_argument("--set", action="append", metavar="KEY=VALUE",
                      help="override one config value, e.g. --set search.population=800 (repeatable)")
+    run.add_argument("--jobs", type=int, metavar="N",
+                     help="evaluate per-candidate objectives in N parallel workers (sets search.jobs)")
+    run.add_argument("--dask", metavar="ADDRESS|local",
+                     help="evaluate on a Dask cluster: a scheduler address, or 'local' for a local cluster "
+                          "started for this run (sets search.dask)")
     run.add_argument("--quiet", action="store_true", help="no progress line")
     run.set_defaults(handler=_cmd_run)
