@@ -18,7 +18,7 @@ def optimize(
     *,
     cardinality=None,
     vectorized: bool = False,
-    population: int = SearchSettings.population,
+    population: Union[int, str] = SearchSettings.population,
     select: float = SearchSettings.select,
     prior: float = SearchSettings.prior,
     elitism: bool = SearchSettings.elitism,

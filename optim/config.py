@@ -238,10 +238,20 @@ def _failure_limit(value):
     return int(value) if value >= 1 else float(value)
 
 
+def _population(value):
+    if value == "auto":
+        return value
+    try:
+        return integer(2)(value)
+    except _Bad:
+        raise _Bad("a whole number >= 2, or 'auto' (no fixed population: runs of doubling size share "
+                   "the budget)") from None
+
+
 #: Validators of the ``search`` keys; defaults come from SearchSettings.
 SEARCH_KEYS: Dict[str, Callable] = {
     "method": choice(METHODS),
-    "population": integer(2),
+    "population": _population,
     "select": number(0, 1, low_open=True),
     "prior": number(0),
     "elitism": boolean,
@@ -414,7 +424,7 @@ def parse_run_config(doc: YamlDocument, path: Optional[Path] = None, check_probl
     checker.unknown(stop_data, list(STOP_KEYS), ("stop",))
     stop_values = {k: checker.value(STOP_KEYS[k], v, ("stop", k)) for k, v in stop_data.items()}
     stop = StopRules(**stop_values)
-    if stop.evaluations < search.population:
+    if isinstance(search.population, int) and stop.evaluations < search.population:
         where = ("stop", "evaluations") if "evaluations" in stop_data else ("search", "population")
         checker.fail(where, f"the evaluation budget ({stop.evaluations}) is smaller than one population "
                             f"({search.population}); raise stop.evaluations or lower search.population")

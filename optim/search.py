@@ -40,8 +40,11 @@ class SearchSettings:
     ----------
     method : str
         One of ``tree``, ``forest``, ``univariate``, ``hillclimb``, ``random``.
-    population : int
+    population : int or "auto"
         Candidates per generation (for the hill climber and random search: evaluations per logged step).
+        ``"auto"`` runs populations of doubling size side by side under the one budget
+        (:class:`optim.methods.ladder.PopulationLadder`); for the hill climber and random search it
+        logs every 100 evaluations.
     select : float
         Fraction of the pool kept by truncation selection, in (0, 1].
     prior : float
@@ -66,7 +69,7 @@ class SearchSettings:
     """
 
     method: str = "tree"
-    population: int = 1000
+    population: Union[int, str] = 1000
     select: float = 0.5
     prior: float = 1.0
     elitism: bool = True

@@ -5,7 +5,8 @@ COMMAND_MODULES = (
     "optim.commands.run",
     "optim.commands.resume",
     "optim.commands.problems",
+    "optim.commands.explain",
     "optim.commands.sweep",
     "optim.commands.report",
-    "optim.commands.explain",
+    "optim.commands.bench",
 )

@@ -13,6 +13,41 @@ from optim.models.spanning import maximum_spanning_tree
 
 __all__ = ["DependencyTree"]
 
+# Number of one bits of every byte (used when numpy has no bitwise_count).
+_ONE_BITS = np.array([bin(value).count("1") for value in range(256)], dtype=np.uint8)
+
+
+def _count_bits(packed: np.ndarray) -> np.ndarray:
+    """Column sums of the one bits of a ``uint8`` array, as float64."""
+    if hasattr(np, "bitwise_count"):
+        bits = np.bitwise_count(packed)
+    else:
+        bits = _ONE_BITS[packed]
+    return bits.sum(axis=0, dtype=np.int64).astype(np.float64)
+
+
+def _ones_with_parent(X: np.ndarray, par: np.ndarray):
+    """For 0/1 data: ``(#rows with X_i = X_par(i) = 1, #rows with X_i = 1)`` for every column ``i``.
+
+    Eight rows are packed into the bits of one byte first, so the column
+    gather and the counting touch an eighth of the data (common practice, no source).
+    """
+    N, n = X.shape
+    full = N - N % 8
+    packed = np.zeros((full // 8, n), dtype=np.uint8)
+    shifted = np.empty_like(packed)
+    for bit in range(8):
+        np.left_shift(X[bit:full:8], bit, out=shifted)
+        packed |= shifted
+    both = np.take(packed, par, axis=1)
+    both &= packed
+    c11, c1 = _count_bits(both), _count_bits(packed)
+    if full < N:
+        rest = X[full:]
+        c11 += (rest & rest[:, par]).sum(axis=0, dtype=np.float64)
+        c1 += rest.sum(axis=0, dtype=np.float64)
+    return c11, c1
+
 
 class DependencyTree(Model):
     """Tree-structured distribution fitted by the method of Chow and Liu.
@@ -102,8 +137,7 @@ class DependencyTree(Model):
         if kmax == 2:
             counts = np.empty((n, 2, 2))
             if w is None:  # whole-number counts: the differences are exact
-                c11 = (X & X[:, par]).sum(axis=0, dtype=np.float64)
-                c1 = X.sum(axis=0, dtype=np.float64)
+                c11, c1 = _ones_with_parent(X, par)
                 p1 = c1[par]
                 counts[:, 1, 1] = c11
                 counts[:, 0, 1] = c1 - c11
@@ -154,22 +188,51 @@ class DependencyTree(Model):
         n = self.n
         uniforms = rng.random((n, count), dtype=np.float32)
         drawn = np.empty((n, count), dtype=np.uint8)
-        par = self._parent_index()
         if self.conditionals.shape[1] == 2:
-            threshold = self.conditionals[:, :, 1].astype(np.float32)  # P(X_i = 1 | parent = a)
-            for i in self.order:
-                if self.parents[i] < 0:
-                    drawn[i] = uniforms[i] < threshold[i, 0]
-                else:
-                    drawn[i] = uniforms[i] < threshold[i].take(drawn[par[i]])
-        else:
-            for i in self.order:
-                if self.parents[i] < 0:
-                    rows = np.broadcast_to(self.conditionals[i, 0], (count, self.conditionals.shape[2]))
-                else:
-                    rows = self.conditionals[i][drawn[par[i]]]
-                drawn[i] = draw_from_rows(rows, uniforms[i], self.cardinality[i])
+            self._draw_binary(uniforms, drawn)
+            return np.ascontiguousarray(drawn.T)
+        par = self._parent_index()
+        for i in self.order:
+            if self.parents[i] < 0:
+                rows = np.broadcast_to(self.conditionals[i, 0], (count, self.conditionals.shape[2]))
+            else:
+                rows = self.conditionals[i][drawn[par[i]]]
+            drawn[i] = draw_from_rows(rows, uniforms[i], self.cardinality[i])
         return np.ascontiguousarray(drawn.T)
+
+    def _draw_binary(self, uniforms: np.ndarray, drawn: np.ndarray) -> None:
+        """``drawn[i] = uniforms[i] < P(X_i = 1 | parent)``, one comparison per variable.
+
+        With ``t0``, ``t1`` the chances of a one given a parent of 0 or 1 and
+        ``d = t1 - t0``, ``u < t0 + d·x_parent`` is ``(u - t0) / d < x_parent``
+        (``>`` when ``d < 0``), so the uniforms are shifted and scaled for all
+        variables at once and the loop does one comparison with the parent's
+        row. Given a parent of 0 the draw is exact; given 1 it may differ from
+        ``u < t1`` by one rounding step of float32 (well below the float32
+        rounding of the chances themselves). Chances of exactly 0 or 1 are
+        moved to -1 and 2, out of reach of any rounding, so such draws stay exact.
+        Variables whose chance does not depend on the parent (``d = 0``, roots
+        among them) are drawn together before the loop.
+        """
+        chance = self.conditionals[:, :, 1]
+        threshold = chance.astype(np.float32)
+        threshold[chance <= 0.0] = -1.0
+        threshold[chance >= 1.0] = 2.0
+        base = threshold[:, 0]
+        slope = threshold[:, 1] - base
+        slope[self.parents < 0] = 0.0
+        scaled = slope != 0.0
+        np.subtract(uniforms, base[:, None], out=uniforms)
+        with np.errstate(over="ignore"):  # a tiny slope may scale to ±inf, which still compares right
+            np.divide(uniforms, np.where(scaled, slope, 1.0).astype(np.float32)[:, None], out=uniforms)
+        as_bool = drawn.view(np.bool_)
+        flat = np.flatnonzero(~scaled)
+        as_bool[flat] = uniforms[flat] < 0.0
+        steps = self.order[scaled[self.order]]
+        compares = [np.less if rising else np.greater for rising in (slope[steps] > 0.0).tolist()]
+        scaled_rows, parent_rows, out_rows = list(uniforms), list(drawn), list(as_bool)  # row views, made once
+        for i, parent, compare in zip(steps.tolist(), self.parents[steps].tolist(), compares):
+            compare(scaled_rows[i], parent_rows[parent], out_rows[i])
 
     def log_prob(self, X) -> np.ndarray:
         self._require_fitted()
