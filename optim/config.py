@@ -42,6 +42,7 @@ __all__ = [
     "read_yaml",
     "YamlDocument",
     "Checker",
+    "check_problem_parameters",
     "integer",
     "number",
     "boolean",
@@ -370,31 +371,35 @@ def _apply_overrides(doc: YamlDocument, overrides: Sequence[str]) -> None:
         doc.overridden.add(tuple(parts))
 
 
-def _check_problem_parameters(checker: Checker, problem: dict) -> None:
-    """For registered problems, check the parameter names against the factory's signature."""
+def check_problem_parameters(checker: Checker, problem: dict, path: Tuple[str, ...] = ("problem",),
+                             extra_keys: Sequence[str] = ()) -> None:
+    """For registered problems, check the parameter names under ``path`` against the factory's signature.
+
+    ``use`` and ``extra_keys`` (such as a sweep's ``label``) are not parameters.
+    """
     import problems as registry
 
+    path = tuple(path)
     use = problem["use"]
     if use not in registry.PROBLEMS:
         if ":" not in use:
             try:
                 registry.get_factory(use)
             except registry.ProblemError as exc:
-                checker.fail(("problem", "use"), str(exc))
+                checker.fail(path + ("use",), str(exc))
         return
-    factory = registry.get_factory(use)
-    parameters = registry.factory_parameters(factory)
+    parameters = registry.factory_parameters(registry.get_factory(use))
     names = [p.name for p in parameters]
     for key in problem:
-        if key != "use" and key not in names:
+        if key != "use" and key not in extra_keys and key not in names:
             close = difflib.get_close_matches(key, names, n=1, cutoff=0.5)
             hint = f"did you mean '{close[0]}'? " if close else ""
             listed = ", ".join(names) if names else "none"
-            checker.fail(("problem", key), f"the problem '{use}' has no parameter '{key}'; {hint}"
-                                           f"its parameters: {listed}")
+            checker.fail(path + (key,), f"the problem '{use}' has no parameter '{key}'; {hint}"
+                                        f"its parameters: {listed}")
     for parameter in parameters:
         if parameter.default is registry.REQUIRED and parameter.name not in problem:
-            checker.fail(("problem",), f"the problem '{use}' needs the parameter '{parameter.name}'")
+            checker.fail(path, f"the problem '{use}' needs the parameter '{parameter.name}'")
 
 
 def parse_run_config(doc: YamlDocument, path: Optional[Path] = None, check_problem: bool = True) -> RunConfig:
@@ -413,7 +418,7 @@ def parse_run_config(doc: YamlDocument, path: Optional[Path] = None, check_probl
         if isinstance(value, str) and _E_NOTATION.match(value.strip()):
             checker.fail(("problem", key), f"found {_describe(value)}")
     if check_problem:
-        _check_problem_parameters(checker, problem)
+        check_problem_parameters(checker, problem)
 
     search_data = checker.mapping(data.get("search"), ("search",), required=False)
     checker.unknown(search_data, list(SEARCH_KEYS), ("search",))

@@ -32,7 +32,6 @@ seed or result.
 from __future__ import annotations
 
 import dataclasses
-import difflib
 import hashlib
 import itertools
 import json
@@ -48,6 +47,7 @@ from optim.config import (
     STOP_KEYS,
     Checker,
     YamlDocument,
+    check_problem_parameters,
     integer,
     read_yaml,
     text,
@@ -172,30 +172,6 @@ def expand_jobs(problems: Sequence[ProblemEntry], methods: Sequence[MethodEntry]
 
 
 # -- validation ---------------------------------------------------------------------------------
-def _check_registered_parameters(checker: Checker, problem: dict, path: Tuple[str, ...]) -> None:
-    import problems as registry
-
-    use = problem["use"]
-    if use not in registry.PROBLEMS:
-        if ":" not in use:
-            try:
-                registry.get_factory(use)
-            except registry.ProblemError as exc:
-                checker.fail(path + ("use",), str(exc))
-        return
-    parameters = registry.factory_parameters(registry.get_factory(use))
-    names = [p.name for p in parameters]
-    for key in problem:
-        if key not in ("use", "label") and key not in names:
-            close = difflib.get_close_matches(key, names, n=1, cutoff=0.5)
-            hint = f"did you mean '{close[0]}'? " if close else ""
-            checker.fail(path + (key,), f"the problem '{use}' has no parameter '{key}'; {hint}"
-                                        f"its parameters: {', '.join(names) if names else 'none'}")
-    for parameter in parameters:
-        if parameter.default is registry.REQUIRED and parameter.name not in problem:
-            checker.fail(path, f"the problem '{use}' needs the parameter '{parameter.name}'")
-
-
 def _parse_problems(checker: Checker, data, check_problem: bool) -> List[ProblemEntry]:
     if not isinstance(data, list) or not data:
         checker.fail(("problems",), "expected a non-empty list of problems, each like a run config's "
@@ -213,7 +189,7 @@ def _parse_problems(checker: Checker, data, check_problem: bool) -> List[Problem
                 checker.fail(path + (key,), f"found the text {value!r} (YAML reads e-notation without a decimal "
                                             f"point as text; write it out, e.g. 100000, or as 1.0e+5)")
         if check_problem:
-            _check_registered_parameters(checker, problem, path)
+            check_problem_parameters(checker, problem, path, extra_keys=("label",))
         label = checker.value(text, problem["label"], path + ("label",)) if "label" in problem else None
         params = {k: v for k, v in problem.items() if k not in ("use", "label")}
         entries.append((label, use, params, path))

@@ -14,22 +14,18 @@ from __future__ import annotations
 import numpy as np
 
 from optim.problem import Problem
+from problems._checks import population_of, require_int
 
 __all__ = ["FourPeaks", "four_peaks"]
 
-
-def _require_int(name: str, value, minimum: int) -> int:
-    if isinstance(value, (bool, np.bool_)) or not isinstance(value, (int, np.integer)) or value < minimum:
-        raise ValueError(f"{name} must be an integer >= {minimum}; got {value!r}")
-    return int(value)
 
 
 class FourPeaks(Problem):
     """Four Peaks (Baluja & Caruana, 1995); see :func:`four_peaks`."""
 
     def __init__(self, n: int = 60, t: int = 6):
-        n = _require_int("n", n, 2)
-        t = _require_int("t", t, 0)
+        n = require_int("n", n, 2)
+        t = require_int("t", t, 0)
         if 2 * t + 2 > n:
             raise ValueError(
                 f"t must satisfy 0 <= t <= (n - 2) / 2 so that the reward can be reached; "
@@ -45,9 +41,7 @@ class FourPeaks(Problem):
         self.t = t
 
     def evaluate(self, X: np.ndarray) -> np.ndarray:
-        X = np.asarray(X, dtype=np.uint8)
-        if X.ndim != 2 or X.shape[1] != self.n:
-            raise ValueError(f"{self.name}: expected a population of shape (count, {self.n}); got {X.shape}")
+        X = population_of(self, X)
         # argmin finds the first zero and argmax the last one; rows without
         # such a bit are all ones (head = n) or all zeros (tail = n).
         head = np.where(X.all(axis=1), self.n, np.argmin(X, axis=1))

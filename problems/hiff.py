@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from optim.problem import Problem
+from problems._checks import population_of
 
 __all__ = ["Hiff", "hiff"]
 
@@ -46,9 +47,7 @@ class Hiff(Problem):
         self.levels = levels
 
     def evaluate(self, X: np.ndarray) -> np.ndarray:
-        X = np.asarray(X, dtype=np.uint8)
-        if X.ndim != 2 or X.shape[1] != self.n:
-            raise ValueError(f"{self.name}: expected a population of shape (count, {self.n}); got {X.shape}")
+        X = population_of(self, X)
         scores = np.full(X.shape[0], self.n, dtype=np.int64)
         values = X
         uniform = np.ones(X.shape, dtype=bool)

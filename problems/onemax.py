@@ -10,21 +10,17 @@ from __future__ import annotations
 import numpy as np
 
 from optim.problem import Problem
+from problems._checks import population_of, require_int
 
 __all__ = ["OneMax", "onemax"]
 
-
-def _require_int(name: str, value, minimum: int) -> int:
-    if isinstance(value, (bool, np.bool_)) or not isinstance(value, (int, np.integer)) or value < minimum:
-        raise ValueError(f"{name} must be an integer >= {minimum}; got {value!r}")
-    return int(value)
 
 
 class OneMax(Problem):
     """The number of ones in a bit string; see :func:`onemax`."""
 
     def __init__(self, n: int = 100):
-        n = _require_int("n", n, 1)
+        n = require_int("n", n, 1)
         super().__init__(
             n,
             goal="maximize",
@@ -34,9 +30,7 @@ class OneMax(Problem):
         )
 
     def evaluate(self, X: np.ndarray) -> np.ndarray:
-        X = np.asarray(X, dtype=np.uint8)
-        if X.ndim != 2 or X.shape[1] != self.n:
-            raise ValueError(f"{self.name}: expected a population of shape (count, {self.n}); got {X.shape}")
+        X = population_of(self, X)
         return X.sum(axis=1, dtype=np.int64).astype(np.float64)
 
 

@@ -12,14 +12,10 @@ from __future__ import annotations
 import numpy as np
 
 from optim.problem import Problem
+from problems._checks import population_of, require_int
 
 __all__ = ["ConcatenatedTrap", "trap"]
 
-
-def _require_int(name: str, value, minimum: int) -> int:
-    if isinstance(value, (bool, np.bool_)) or not isinstance(value, (int, np.integer)) or value < minimum:
-        raise ValueError(f"{name} must be an integer >= {minimum}; got {value!r}")
-    return int(value)
 
 
 class ConcatenatedTrap(Problem):
@@ -35,13 +31,13 @@ class ConcatenatedTrap(Problem):
     """
 
     def __init__(self, n: int = 60, k: int = 3, shuffle: bool = False, seed: int = 0):
-        k = _require_int("k", k, 2)
-        n = _require_int("n", n, 1)
+        k = require_int("k", k, 2)
+        n = require_int("n", n, 1)
         if n % k:
             raise ValueError(f"n must be a positive multiple of k={k}; got n={n}")
         if not isinstance(shuffle, (bool, np.bool_)):
             raise ValueError(f"shuffle must be true or false; got {shuffle!r}")
-        seed = _require_int("seed", seed, 0)
+        seed = require_int("seed", seed, 0)
         positions = np.arange(n, dtype=np.int64)
         if shuffle:
             positions = np.random.default_rng(seed).permutation(n).astype(np.int64)
@@ -58,9 +54,7 @@ class ConcatenatedTrap(Problem):
         self.blocks = positions.reshape(n // k, k)
 
     def evaluate(self, X: np.ndarray) -> np.ndarray:
-        X = np.asarray(X, dtype=np.uint8)
-        if X.ndim != 2 or X.shape[1] != self.n:
-            raise ValueError(f"{self.name}: expected a population of shape (count, {self.n}); got {X.shape}")
+        X = population_of(self, X)
         ones = X[:, self.blocks].sum(axis=2, dtype=np.int64)
         block_values = np.where(ones == self.k, self.k, self.k - 1 - ones)
         return block_values.sum(axis=1).astype(np.float64)
