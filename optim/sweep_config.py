@@ -123,7 +123,7 @@ class SweepConfig:
     seeds: List[int]
     stop: StopRules
     seed: int = 0
-    out: str = "sweeps"
+    out: str = "runs/sweeps"
     path: Optional[Path] = None
     jobs: List[Job] = field(default_factory=list)
 
@@ -294,7 +294,7 @@ def parse_sweep_config(doc: YamlDocument, path: Optional[Path] = None, check_pro
                          f"({method.settings.population}) of {method.label!r}")
 
     root = checker.value(integer(0), data.get("seed", 0), ("seed",))
-    out = checker.value(text, data.get("out", "sweeps"), ("out",))
+    out = checker.value(text, data.get("out", "runs/sweeps"), ("out",))
     name = checker.value(text, data.get("name", path.stem if path is not None else "sweep"), ("name",))
     if re.search(r"[/\\\0]", name) or name in (".", ".."):
         checker.fail(("name",), f"expected a name usable as a folder name (no slashes); found {name!r}")

@@ -26,5 +26,5 @@ def register(commands) -> None:
                     "uses small sizes and three seeds (a few minutes).",
     )
     bench.add_argument("--quick", action="store_true", help="small sizes and three seeds (a few minutes)")
-    bench.add_argument("--out", default="bench", help="folder for bench.json and bench.md (default: bench)")
+    bench.add_argument("--out", default="runs/bench", help="folder for bench.json and bench.md (default: runs/bench)")
     bench.set_defaults(handler=_cmd_bench)
