@@ -184,6 +184,7 @@ def execute(config: RunConfig, problem=None, on_generation: Optional[Callable] =
         "config_file": str(config.path) if config.path is not None else None,
         "config_dir": str(config.base_dir),
         "problem": problem.describe(),
+        "variable_names": problem.variable_names,
     })
     search = Search(problem, config.search, config.stop, seed=config.seed)
     return _drive(search, folder, problem, config.checkpoint_every, 0, on_generation)
