@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 import shlex
 import signal
 import threading
@@ -36,12 +37,32 @@ def build_problem(config: RunConfig):
         return problems.make_problem(config.problem["use"], params, base_dir=config.base_dir)
     except problems.ProblemError as exc:
         source = str(config.path) if config.path is not None else ""
-        line = None
-        if config.path is not None:
+        line, key = None, "problem.use"
+        if config.path is not None and config.path.exists():
             from optim.config import read_yaml
 
-            line = read_yaml(config.path).line(("problem", "use"))
-        raise ConfigError(str(exc), source, line, "problem.use") from None
+            doc = read_yaml(config.path)
+            line = doc.line(("problem", "use"))
+            named = _parameter_named_in(str(exc), params)
+            if named is not None and ("problem",) + named[:1] in doc.lines:
+                line, key = doc.line(("problem",) + named), "problem." + ".".join(named)
+        raise ConfigError(str(exc), source, line, key) from None
+
+
+_KEY_PATH = re.compile(r"(?:^|: )([A-Za-z_]\w*(?:\[\d+\]|\.[A-Za-z_]\w*)*)(?:: | must )")
+
+
+def _parameter_named_in(message: str, params: dict):
+    """The config key path a factory's message starts with (``variables[1].values: …``, ``n must …``).
+
+    Returns the path as a tuple of keys (list indices as text) when its first key is one of the
+    problem's parameters, else ``None``; used to point an error at the right line.
+    """
+    for match in _KEY_PATH.finditer(message):
+        parts = tuple(p for p in re.split(r"[.\[\]]+", match.group(1)) if p)
+        if parts and parts[0] in params:
+            return parts
+    return None
 
 
 class RunOutcome:

@@ -63,7 +63,10 @@ CATALOGUE = [
     ("name with slash", GOOD.replace("name: ok", "name: a/b"), 1, "no slashes"),
     ("unknown problem", GOOD.replace("use: onemax", "use: onemaks"), 3, "did you mean 'onemax'"),
     ("unknown problem parameter", GOOD.replace("n: 20", "size: 20"), 4, "has no parameter 'size'"),
-    ("bad problem value", GOOD.replace("n: 20", "n: -3"), 3, "n must be"),
+    ("bad problem value", GOOD.replace("n: 20", "n: -3"), 4, "'problem.n': problem 'onemax': n must be"),
+    ("bad command option", "problem:\n  use: command\n  command: [echo, '{flags}']\n  variables:\n"
+     "    - {flag: -a}\n    - {flg: -b}\n  score: {last_number: true}\n  goal: minimize\n", 6,
+     "'problem.variables.1': problem 'command': variables[1]: unknown key 'flg'"),
     ("problem e-notation", GOOD.replace("n: 20", "n: 2e1"), 4, "e-notation"),
     ("objective file missing", GOOD.replace("use: onemax", "use: nowhere.py:score"), 3, "nowhere.py"),
     ("callable missing", GOOD.replace("use: onemax", "use: objective.py:absent"), 3, "absent"),
