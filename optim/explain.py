@@ -516,47 +516,35 @@ def _read_config(path: Path) -> dict:
 
 def _read_trees(path: Path, n: int) -> List[dict]:
     """``trees.jsonl`` records, checked; a torn last line (no newline) is ignored."""
-    if not path.exists():
-        return []
     records = []
-    with path.open("r", encoding="utf-8") as handle:
-        for number, line in enumerate(handle, 1):
-            if not line.endswith("\n"):
-                break
-            if not line.strip():
-                continue
-            where = f"{path}:{number}"
-            try:
-                record = json.loads(line)
-            except json.JSONDecodeError as exc:
-                raise RunFolderError(f"{where}: not valid JSON ({exc.msg})") from None
-            if not isinstance(record, dict) or not isinstance(record.get("generation"), int) \
-                    or not isinstance(record.get("edges"), list):
-                raise RunFolderError(f"{where}: expected an object with 'generation' (a whole number) and "
-                                     f"'edges' (a list of [parent, child, mutual information])")
-            for edge in record["edges"]:
-                if (not isinstance(edge, list) or len(edge) != 3
-                        or not all(isinstance(v, int) and 0 <= v < n for v in edge[:2])
-                        or not isinstance(edge[2], (int, float))):
-                    raise RunFolderError(f"{where}: expected each edge as [parent, child, mutual information] "
-                                         f"with variable indices 0..{n - 1}; found {edge!r}")
-            fitted_on = record.get("fitted_on")
-            if fitted_on is not None and (not isinstance(fitted_on, int) or fitted_on < 1):
-                raise RunFolderError(f"{where}: 'fitted_on' must be a positive whole number; found {fitted_on!r}")
-            records.append(record)
+    for number, record in read_jsonl(path, with_lines=True):
+        where = f"{path}:{number}"
+        if not isinstance(record, dict) or not isinstance(record.get("generation"), int) \
+                or not isinstance(record.get("edges"), list):
+            raise RunFolderError(f"{where}: expected an object with 'generation' (a whole number) and "
+                                 f"'edges' (a list of [parent, child, mutual information])")
+        for edge in record["edges"]:
+            if (not isinstance(edge, list) or len(edge) != 3
+                    or not all(isinstance(v, int) and 0 <= v < n for v in edge[:2])
+                    or not isinstance(edge[2], (int, float))):
+                raise RunFolderError(f"{where}: expected each edge as [parent, child, mutual information] "
+                                     f"with variable indices 0..{n - 1}; found {edge!r}")
+        fitted_on = record.get("fitted_on")
+        if fitted_on is not None and (not isinstance(fitted_on, int) or fitted_on < 1):
+            raise RunFolderError(f"{where}: 'fitted_on' must be a positive whole number; found {fitted_on!r}")
+        records.append(record)
     return records
 
 
 def _read_evaluated(folder: RunFolder, n: Optional[int]):
     npz = folder.file(RunFolder.EVALUATED)
-    if npz.exists():
-        try:
-            with np.load(npz, allow_pickle=False) as data:
-                return np.asarray(data["candidates"]), np.asarray(data["scores"]), np.asarray(data["generation"])
-        except (OSError, ValueError, KeyError, zipfile.BadZipFile) as exc:
-            raise RunFolderError(f"{npz}: cannot be read as evaluated candidates ({exc})") from None
-    part_name = getattr(RunFolder, "EVALUATED_PART", None)
-    if part_name and folder.file(part_name).exists() and n is not None and hasattr(folder, "read_evaluated_part"):
+    try:
+        evaluated = folder.read_evaluated()
+    except (OSError, ValueError, KeyError, zipfile.BadZipFile) as exc:
+        raise RunFolderError(f"{npz}: cannot be read as evaluated candidates ({exc})") from None
+    if evaluated is not None:
+        return evaluated
+    if folder.file(RunFolder.EVALUATED_PART).exists() and n is not None:
         return folder.read_evaluated_part(n)
     return None
 

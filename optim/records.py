@@ -85,8 +85,11 @@ def atomic_write(path, data: bytes) -> None:
     _fsync_folder(path.parent)
 
 
-def read_jsonl(path) -> list:
-    """Records of a JSON Lines file; a torn last line (no newline) is ignored."""
+def read_jsonl(path, with_lines: bool = False) -> list:
+    """Records of a JSON Lines file; a torn last line (no newline) is ignored.
+
+    With ``with_lines``, each entry is ``(line number, record)`` so callers can report where a bad record is.
+    """
     path = Path(path)
     if not path.exists():
         return []
@@ -97,9 +100,10 @@ def read_jsonl(path) -> list:
                 break
             if line.strip():
                 try:
-                    records.append(json.loads(line))
+                    record = json.loads(line)
                 except json.JSONDecodeError as exc:
                     raise RunFolderError(f"{path}:{number}: not valid JSON ({exc.msg})") from None
+                records.append((number, record) if with_lines else record)
     return records
 
 
