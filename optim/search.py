@@ -42,7 +42,8 @@ class SearchSettings:
         One of ``tree``, ``forest``, ``univariate``, ``hillclimb``, ``random``.
     population : int or "auto"
         Candidates per generation (for the hill climber and random search: evaluations per logged step).
-        ``"auto"`` runs populations of doubling size side by side under the one budget
+        ``"auto"`` (the default) runs populations of doubling size one after another under the one
+        budget, each until it converges, stalls or stops learning from its samples
         (:class:`optim.methods.ladder.PopulationLadder`); for the hill climber and random search it
         logs every 100 evaluations.
     select : float
@@ -69,7 +70,7 @@ class SearchSettings:
     """
 
     method: str = "tree"
-    population: Union[int, str] = 1000
+    population: Union[int, str] = "auto"
     select: float = 0.5
     prior: float = 1.0
     elitism: bool = True

@@ -1,8 +1,8 @@
-"""The population ladder (population "auto"): budget, schedule, determinism, solving, exact resume.
+"""The population ladder (population "auto"): ending rules, schedule, budget, determinism, solving, exact resume.
 
-The schedule is checked against the counter of Harik & Lobo (1999, "A
-parameter-less genetic algorithm"): at the t-th step the run that advances is
-the one whose index is the number of trailing zeros of t written in base m.
+The ending rules are checked on objectives whose outcome is known in advance
+(flat fitness, new candidates always worse, always better), so the schedule of
+populations and evaluations can be written down exactly.
 """
 
 import copy
@@ -31,25 +31,104 @@ def _counting_fitness(problem):
     return fitness
 
 
-def _trailing_zeros(t, base):
-    count = 0
-    while t % base == 0:
-        t //= base
-        count += 1
-    return count
+def _flat_rung_evaluations(population, generations):
+    """Evaluations of a run with elitism and select 0.5: a full first generation, then half a pool each."""
+    return population + generations * (population // 2)
 
 
-@pytest.mark.parametrize("ratio", [2, 3, 4])
-def test_schedule_is_the_base_m_counter_of_harik_and_lobo(ratio):
-    # Flat fitness and a huge stall limit: no run is ever dropped, so only the counter decides.
-    # Without elitism every generation of a run evaluates exactly its population, which names the run.
+def test_a_flat_objective_stalls_every_run_after_the_stall_limit_and_the_population_doubles():
+    # Flat fitness: the survivors' mean never rises after the first generation, so every run ends as
+    # "stalled" after exactly 1 + stall generations (the slow rule is switched off with rate 0).
     problem = _constant()
-    ladder = PopulationLadder(problem, np.random.default_rng(0), elitism=False, smallest=8, rung_ratio=ratio,
-                              stall=10 ** 6)
-    for t in range(1, 60):
+    ladder = PopulationLadder(problem, np.random.default_rng(0), smallest=8, stall=3, rate=0.0)
+    evaluations = [ladder.step(_counting_fitness(problem), 10 ** 9).evaluations for _ in range(4 * 4)]
+    assert ladder.populations == [8, 16, 32, 64]
+    expected = []
+    for population in (8, 16, 32, 64):
+        expected += [population] + [population // 2] * 3
+    assert evaluations == expected
+    assert [r["ending"] for r in ladder.rungs] == ["stalled"] * 3 + ["live"]
+    assert [r["evaluations"] for r in ladder.rungs[:3]] == [_flat_rung_evaluations(p, 3) for p in (8, 16, 32)]
+
+
+def _drifting(problem, direction):
+    """An objective whose every new candidate scores ``direction`` times higher than all before it."""
+    calls = {"count": 0}
+
+    def fitness(X):
+        start = calls["count"]
+        calls["count"] += X.shape[0]
+        return direction * np.arange(start, start + X.shape[0], dtype=np.float64)
+    return fitness
+
+
+def test_a_run_whose_new_candidates_never_survive_ends_as_slow_after_the_window():
+    # Every new candidate is worse than every earlier one: none survives the next selection (rate 0).
+    # With the stall rule out of reach the run ends as "slow" once the window of rates is full:
+    # generation 1 (uniform, no rate), generations 2 and 3 (two rates), then the next run starts.
+    problem = onemax(12)
+    ladder = PopulationLadder(problem, np.random.default_rng(1), smallest=8, stall=10 ** 6, window=2, rate=0.3)
+    fitness = _drifting(problem, -1.0)
+    for _ in range(3):
+        ladder.step(fitness, 10 ** 9)
+    assert ladder.rates == [0.0, 0.0] and ladder.ending() == "slow"
+    ladder.step(fitness, 10 ** 9)
+    assert ladder.populations == [8, 16]
+    assert ladder.rungs[0] == {"population": 8, "evaluations": _flat_rung_evaluations(8, 2), "ending": "slow"}
+
+
+def test_a_run_whose_new_candidates_always_win_goes_on():
+    # Every new candidate beats all before it: all of them survive (rate 1) and the survivors' mean
+    # rises every generation, so the first run never ends.
+    problem = onemax(12)
+    ladder = PopulationLadder(problem, np.random.default_rng(2), smallest=8)
+    fitness = _drifting(problem, 1.0)
+    for _ in range(40):
+        ladder.step(fitness, 10 ** 9)
+    assert ladder.populations == [8]
+    assert ladder.rates == [1.0] * ladder.window and ladder.ending() is None
+
+
+def test_the_replacement_rate_is_the_share_of_new_candidates_the_next_selection_keeps():
+    problem = trap(n=30, k=3, shuffle=True, seed=4)
+    ladder = PopulationLadder(problem, np.random.default_rng(5), smallest=64, stall=10 ** 6, rate=0.0)
+    ladder.step(_counting_fitness(problem), 10 ** 9)
+    for _ in range(12):
         outcome = ladder.step(_counting_fitness(problem), 10 ** 9)
-        assert outcome.evaluations == 8 * 2 ** _trailing_zeros(t, ratio)
-    assert ladder.populations == [8 * 2 ** k for k in range(len(ladder.populations))]
+        run = ladder.run
+        carried = run.pool.shape[0] - outcome.evaluations
+        assert np.array_equal(run.pool[carried:], outcome.candidates)
+        kept = truncation_select(run.pool_fitness, run.select)
+        assert ladder.rates[-1] == pytest.approx(np.count_nonzero(kept >= carried) / outcome.evaluations)
+        assert 0.0 <= ladder.rates[-1] <= 1.0 and len(ladder.rates) <= ladder.window
+
+
+def test_without_elitism_no_rate_is_measured():
+    problem = onemax(20)
+    ladder = PopulationLadder(problem, np.random.default_rng(3), smallest=16, elitism=False)
+    for _ in range(10):
+        ladder.step(_counting_fitness(problem), 10 ** 9)
+    assert ladder.rates == []
+
+
+def test_every_ended_run_met_an_ending_rule_and_the_runs_account_for_every_evaluation():
+    problem = trap(n=30, k=3, shuffle=True, seed=6)
+    ladder = PopulationLadder(problem, np.random.default_rng(7), smallest=16)
+    total = 0
+    while ladder.population is None or ladder.population < 512:  # a solved run converges: the next doubles
+        before = ladder.populations
+        reason = ladder.ending()
+        total += ladder.step(_counting_fitness(problem), 10 ** 9).evaluations
+        if before and ladder.populations != before:
+            assert reason in ("converged", "stalled", "slow")
+            assert ladder.rungs[-2]["ending"] == reason
+        else:
+            assert reason is None or not before
+    pops = ladder.populations
+    assert pops == [16 * 2 ** k for k in range(len(pops))] and len(pops) >= 3
+    assert all(r["ending"] in ("converged", "stalled", "slow") for r in ladder.rungs[:-1])
+    assert ladder.rungs[-1]["ending"] == "live"
+    assert sum(r["evaluations"] for r in ladder.rungs) == total
 
 
 def test_budget_is_respected_exactly_through_the_driver():
@@ -63,43 +142,26 @@ def test_budget_is_respected_exactly_through_the_driver():
 
 
 def test_each_step_stays_within_the_budget_it_is_given_and_never_starts_a_run_that_cannot_fit():
-    problem = onemax(30)
-    ladder = PopulationLadder(problem, np.random.default_rng(1))
+    problem = _constant(30)
+    ladder = PopulationLadder(problem, np.random.default_rng(1), smallest=8, stall=2)
     rng = np.random.default_rng(2)
-    remaining, created = 6000, 0
+    remaining, created, held_back = 20000, 0, 0
     while remaining > 0:
         budget = int(min(remaining, rng.integers(1, 400)))
-        alive_before, started_before = len(ladder.runs), ladder.started
+        started_before, population_before = len(ladder.rungs), ladder.population
+        due = ladder.ending() is not None
         outcome = ladder.step(_counting_fitness(problem), budget)
         assert 1 <= outcome.evaluations <= budget
         assert outcome.candidates.shape == (outcome.evaluations, 30)
         assert outcome.fitness.shape == (outcome.evaluations,)
-        if ladder.started > started_before and alive_before:
-            assert ladder.largest <= budget
+        if len(ladder.rungs) > started_before and started_before:
+            assert ladder.population <= budget
             created += 1
+        elif due:
+            assert 2 * population_before > budget
+            held_back += 1
         remaining -= outcome.evaluations
-    assert created >= 2
-
-
-def test_live_runs_obey_the_dropping_rules_after_every_step():
-    problem = trap(n=30, k=3, shuffle=True, seed=4)
-    ladder = PopulationLadder(problem, np.random.default_rng(5), smallest=16)
-    dropped_before = 0
-    for _ in range(300):
-        ladder.step(_counting_fitness(problem), 1024)  # no run larger than 1024 is started
-        pops = ladder.populations
-        assert pops == sorted(pops) and len(set(pops)) == len(pops)
-        means = [float(run.pool_fitness.mean()) for run in ladder.runs]
-        for i in range(len(means)):  # no larger run has a higher mean than a smaller live one
-            assert all(means[j] <= means[i] for j in range(i + 1, len(means)))
-        for i, run in enumerate(ladder.runs):
-            assert not run.converged
-            assert ladder.stale[i] < ladder.stall
-            kept = truncation_select(run.pool_fitness, ladder.select)
-            assert ladder.survivor_means[i] >= run.pool_fitness[kept].mean() - 1e-12
-        assert ladder.dropped >= dropped_before
-        dropped_before = ladder.dropped
-    assert ladder.dropped > 0 and ladder.started == ladder.dropped + len(ladder.runs)
+    assert created >= 2 and held_back >= 1
 
 
 def test_same_seed_same_run_other_seed_other_run():
@@ -153,20 +215,21 @@ def test_state_round_trip_gives_an_identical_continuation():
     for a, b in zip(expected, got):
         assert np.array_equal(a.candidates, b.candidates)
         assert np.array_equal(a.fitness, b.fitness)
-    assert restored.populations == ladder.populations
-    assert restored.get_state()["digits"].tolist() == ladder.get_state()["digits"].tolist()
+    assert restored.populations == ladder.populations and len(ladder.populations) >= 2
+    assert restored.rungs == ladder.rungs and restored.rates == ladder.rates
+    assert (restored.stale, restored.survivor_mean) == (ladder.stale, ladder.survivor_mean)
 
 
 def test_state_is_a_copy():
     problem = onemax(20)
     ladder = PopulationLadder(problem, np.random.default_rng(0), smallest=8)
     _steps(ladder, problem, 10)
-    digits, pool = list(ladder.digits), ladder.runs[0].pool.copy()
+    rates, pool = list(ladder.rates), ladder.run.pool.copy()
     state = ladder.get_state()
-    state["digits"][:] = 99
-    state["runs"][0]["pool"][:] = 1 - state["runs"][0]["pool"]
-    assert ladder.digits == digits
-    assert np.array_equal(ladder.runs[0].pool, pool)
+    state["rates"][:] = 99
+    state["run"]["pool"][:] = 1 - state["run"]["pool"]
+    assert ladder.rates == rates
+    assert np.array_equal(ladder.run.pool, pool)
 
 
 def test_checkpoint_file_round_trip_of_a_search_with_auto_population(tmp_path):
@@ -189,16 +252,15 @@ def test_checkpoint_file_round_trip_of_a_search_with_auto_population(tmp_path):
                {k: v for k, v in b.items() if k not in ("seconds", "time")}
 
 
-def test_model_and_entropy_come_from_the_best_live_run():
+def test_model_and_entropy_come_from_the_current_run():
     problem = onemax(30)
     ladder = PopulationLadder(problem, np.random.default_rng(3), smallest=8)
-    assert ladder.model() is None
+    assert ladder.model() is None and ladder.population is None
     assert ladder.model_entropy == pytest.approx(30 * np.log(2))
     _steps(ladder, problem, 30)
-    means = [float(run.pool_fitness.mean()) for run in ladder.runs]
-    best = max(range(len(means)), key=lambda i: (means[i], i))
     model = ladder.model()
-    assert model is ladder.runs[best].model() and model.n == 30
+    assert model is ladder.run.model() and model.n == 30
+    assert ladder.population == ladder.populations[-1]
     assert ladder.model_entropy == pytest.approx(model.entropy())
     assert not ladder.converged
 
@@ -214,10 +276,17 @@ def test_auto_for_the_hill_climber_and_random_search_is_a_fixed_step():
         make_method("tree", problem, np.random.default_rng(0), population="big")
 
 
-@pytest.mark.parametrize("bad", [{"smallest": 3}, {"rung_ratio": 1}, {"stall": 0}, {"smallest": 8.5}])
+@pytest.mark.parametrize("bad", [{"smallest": 3}, {"stall": 0}, {"smallest": 8.5}, {"window": 0},
+                                 {"rate": 1.0}, {"rate": -0.1}, {"stall": True}])
 def test_bad_ladder_parameters_are_rejected(bad):
     with pytest.raises(ValueError, match="PopulationLadder"):
         PopulationLadder(onemax(5), np.random.default_rng(0), **bad)
+
+
+def test_auto_is_the_default_population():
+    assert SearchSettings().population == "auto"
+    config = parse_run_config(parse_yaml_text("problem:\n  use: onemax\n", "run.yaml"))
+    assert config.search.population == "auto"
 
 
 def test_run_configs_accept_auto_and_explain_the_choice():
