@@ -286,6 +286,7 @@ class Search:
             "mean": self._score(float(finite.mean())) if finite.size else None,
             "generation_best": self._score(float(finite.max())) if finite.size else None,
             "model_entropy": None if entropy is None else float(entropy),
+            "population": getattr(self.method, "population", None),
             "failures": self.evaluator.failure_count,
             "cache_hits": self.evaluator.cache_hits,
             "objective_calls": self.evaluator.calls,

@@ -296,3 +296,13 @@ def test_run_configs_accept_auto_and_explain_the_choice():
     with pytest.raises(ConfigError, match=r"run.yaml:4: 'search.population': expected a whole number >= 2, "
                                           r"or 'auto'"):
         parse_run_config(parse_yaml_text("problem:\n  use: onemax\nsearch:\n  population: lots\n", "run.yaml"))
+
+
+def test_the_log_names_the_population_of_every_generation():
+    result = Search(trap(n=30, k=3, shuffle=True, seed=3), SearchSettings(population="auto"),
+                    StopRules(evaluations=20_000, target=None), seed=3).run()
+    populations = [record["population"] for record in result.history]
+    assert populations[0] == 32 and populations == sorted(populations) and len(set(populations)) >= 3
+    assert all(p in {32 * 2 ** k for k in range(12)} for p in populations)
+    fixed = Search(onemax(20), SearchSettings(population=50), StopRules(evaluations=500), seed=1).run()
+    assert {record["population"] for record in fixed.history} == {50}
