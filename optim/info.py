@@ -57,6 +57,8 @@ _TINY = np.float32(1e-30)
 _BLOCK_CELLS = 1 << 24
 # Pairs per block of the binary path's cell arithmetic (its working set stays in cache).
 _CHUNK_CELLS = 1 << 15
+# Smallest scaled prior for which unweighted binary cells cannot round to zero or below.
+_SAFE_PRIOR = 2.0 ** -20
 
 
 # -- input checks ---------------------------------------------------------------------------
@@ -250,16 +252,17 @@ def _marginals_in_pairs(counts: np.ndarray, card: np.ndarray, mass: float, prior
 
 
 # -- pair statistics ------------------------------------------------------------------------
-def _binary_pairs(X: np.ndarray, weights, prior: float):
-    """Joint entropies (float32, (n, n)) and in-pair marginal entropies of binary data.
+def _binary_pairs(X: np.ndarray, weights, prior: float, information: bool = False):
+    """``(table, marg, product)`` of binary data: pair entropies, in-pair marginal entropies, B.T @ B.
 
     One product ``C11 = B.T @ B`` gives every pair's (1, 1) cell; with the
     column sums ``s`` and total ``W`` the other cells are ``s_i - C11``,
     ``s_j - C11`` and ``W - s_i - s_j + C11``. Counts are scaled by a power of
     two to total at most 1 (exact), so for unweighted data every cell is an
-    exact float32 value. The cells are built and turned into entropies a few
-    rows at a time, so the work stays in cache and no (4, n, n) array is
-    needed; the entropies overwrite the product in place.
+    exact float32 value. ``table`` (float32, (n, n)) holds the joint
+    entropies, or with ``information`` I(X_i; X_j) = H(X_i) + H(X_j) -
+    H(X_i, X_j) clipped at 0 (its diagonal is then meaningless: callers clear
+    it). Unweighted, ``product`` holds the plain counts C11.
     """
     N, n = X.shape
     data_mass = float(N) if weights is None else float(weights.sum())
@@ -274,43 +277,67 @@ def _binary_pairs(X: np.ndarray, weights, prior: float):
     del B
     ones = np.diagonal(product).astype(np.float64) * after_product
     mass, a = data_mass * scale, prior * scale
-    # Every cell below is built symmetrically in (i, j), so the result is exactly symmetric.
+    counts = np.column_stack((mass - ones, ones)).ravel()
+    marg = _marginals_in_pairs(counts, np.full(n, 2, dtype=np.int64), mass, a)
+    # Unweighted cells with a prior are at least a (up to a few float32 steps of 1): never <= 0.
+    positive = weights is None and N < _EXACT_COUNTS and a >= _SAFE_PRIOR
+    # "+ 0" turns a -0.0 entropy (constant column) into +0.0, so no -0.0 reaches the information.
+    offsets = marg[:, 0].astype(np.float32) + np.float32(0.0) if information else None
+    table = np.empty_like(product)
+    _binary_cell_entropies(table, product, after_product, ones, mass, a, positive, offsets)
+    return table, marg, product
+
+
+def _binary_cell_entropies(table, product, after_product, ones, mass, a, positive, offsets) -> None:
+    """Fill ``table`` with the joint entropies ``log(T) - S / T`` (T the total, S the sum of
+    c log c over the four cells), or with ``offsets_i + offsets_j - log(T) + S / T`` clipped at
+    0 when the marginal entropies ``offsets`` are given (the mutual information).
+
+    ``product * after_product`` is C11. Only the upper triangle is computed, a
+    few rows at a time so the work stays in cache, and mirrored below the
+    diagonal. Every cell is built symmetrically in (i, j) (the sum is taken as
+    (c00 + c11) + (c01 + c10), whose off cells swap for (j, i)), so the blocks
+    on the diagonal come out exactly symmetric too.
+    """
+    n = product.shape[0]
     # With both = C11 + a: neither = half_rest_i + half_rest_j + both, only_i = ones_smoothed_i - both.
     half_rest = (0.5 * mass - ones).astype(np.float32)
     ones_smoothed = (ones + 2.0 * a).astype(np.float32)
+    total = mass + 4.0 * a
+    sign = 1.0 if offsets is None else -1.0
     post, shift = np.float32(after_product), np.float32(a)
-    # Cells may round below 0 unless they are exact (unweighted, no prior, counts below 2**24).
-    clamp = weights is not None or a > 0 or N >= _EXACT_COUNTS
-    rows_per_block = max(_CHUNK_CELLS // n, 1)
-    cells = np.empty((4, rows_per_block, n), dtype=np.float32)
-    logs = np.empty_like(cells)
-    for top in range(0, n, rows_per_block):
-        bottom = min(top + rows_per_block, n)
-        rows = slice(top, bottom)
-        c, lg = cells[:, : bottom - top], logs[:, : bottom - top]
-        both = np.multiply(product[rows], post, out=c[3])
-        if a > 0:
-            both += shift
-        np.add(half_rest[rows, None], half_rest[None, :], out=c[0])
+    factor, constant = np.float32(-sign / total), np.float32(sign * math.log(total))
+    size = 4 * max(_CHUNK_CELLS, n)
+    cell_buffer, log_buffer = np.empty(size, dtype=np.float32), np.empty(size, dtype=np.float32)
+    top = 0
+    while top < n:
+        width = n - top
+        bottom = min(top + max(_CHUNK_CELLS // width, 1), n)
+        rows, height = slice(top, bottom), bottom - top
+        c = cell_buffer[: 4 * height * width].reshape(4, height, width)
+        lg = log_buffer[: 4 * height * width].reshape(4, height, width)
+        both = np.multiply(product[rows, top:], post, out=c[3])
+        both += shift
+        np.add(half_rest[rows, None], half_rest[None, top:], out=c[0])
         c[0] += both
-        np.subtract(ones_smoothed[None, :], both, out=c[1])
+        np.subtract(ones_smoothed[None, top:], both, out=c[1])
         np.subtract(ones_smoothed[rows, None], both, out=c[2])
-        if clamp:
-            np.maximum(c, 0.0, out=c)
-        np.maximum(c, _TINY, out=lg)
-        np.log(lg, out=lg)
+        if not positive:  # c log c at c = _TINY is ~1e-28, as good as 0 (and cells rounded below 0)
+            np.maximum(c, _TINY, out=c)
+        np.log(c, out=lg)
         lg *= c
-        # (c00 + c11) + (c01 + c10): the same sum for (j, i), whose off cells are swapped.
-        block = product[rows]
-        np.add(lg[0], lg[3], out=block)
+        block = np.add(lg[0], lg[3], out=lg[0])  # built in the (cached) buffer, written out once
         lg[1] += lg[2]
         block += lg[1]
-    total = mass + 4.0 * a
-    product *= np.float32(-1.0 / total)
-    product += np.float32(math.log(total))
-    counts = np.column_stack((mass - ones, ones)).ravel()
-    marg = _marginals_in_pairs(counts, np.full(n, 2, dtype=np.int64), mass, a)
-    return product, marg
+        block *= factor
+        block += constant
+        if offsets is not None:
+            np.add(offsets[rows, None], offsets[None, top:], out=lg[1])
+            block += lg[1]
+            np.maximum(block, np.float32(0.0), out=block)
+        table[rows, top:] = block
+        table[bottom:, rows] = block[:, height:].T
+        top = bottom
 
 
 def _variable_blocks(card: np.ndarray, total_columns: int):
@@ -407,8 +434,36 @@ def _pair_statistics(X, card, weights, prior):
     """``(joint, marg)``: joint[i, j] = H(X_i, X_j) of the smoothed pair table (float32, nats);
     marg broadcasts to (n, n) with marg[i, j] = H of X_i's marginal in that table."""
     if np.all(card == 2):
-        return _binary_pairs(X, weights, prior)
+        return _binary_pairs(X, weights, prior)[:2]
     return _general_pairs(X, card, weights, prior)
+
+
+def _information_matrix(X, card, weights, prior) -> np.ndarray:
+    """:func:`mutual_information` in nats as float32, for inputs already checked.
+
+    Exactly symmetric, zero on the diagonal, and every entry >= +0.0 (never -0.0).
+    """
+    return _information_and_pair_ones(X, card, weights, prior)[0]
+
+
+def _information_and_pair_ones(X, card, weights, prior):
+    """``(information, pair_ones)``: :func:`_information_matrix`, and for unweighted binary data
+    with fewer than 2**24 rows the product ``X.T @ X`` it came from as float32, whose entries
+    are the exact numbers of rows with X_i = X_j = 1 (else ``None``)."""
+    pair_ones = None
+    if np.all(card == 2):
+        information, _, product = _binary_pairs(X, weights, prior, information=True)
+        if weights is None and X.shape[0] < _EXACT_COUNTS:
+            pair_ones = product
+    else:
+        joint, marg = _general_pairs(X, card, weights, prior)
+        # "+ 0" turns -0.0 into +0.0; then no difference below is -0.0.
+        marg = marg.astype(np.float32) + np.float32(0.0)
+        information = np.add(marg, marg.T)
+        information -= joint
+        np.maximum(information, 0.0, out=information)
+    np.fill_diagonal(information, 0.0)
+    return information, pair_ones
 
 
 def _padded_counts(X, card, weights) -> np.ndarray:
@@ -517,13 +572,7 @@ def mutual_information(X, cardinality=None, prior=0.0, weights=None, base=None) 
     X, card, w, a = _check_common(X, cardinality, weights, prior, caller)
     log_base = _check_base(base, caller)
     _check_mass(w, a, caller)
-    joint, marg = _pair_statistics(X, card, w, a)
-    marg = marg.astype(np.float32)
-    information = np.add(marg, marg.T)
-    information -= joint
-    np.maximum(information, 0.0, out=information)
-    result = information.astype(np.float64)
-    np.fill_diagonal(result, 0.0)
+    result = _information_matrix(X, card, w, a).astype(np.float64)
     if log_base != 1.0:
         result /= log_base
     return result

@@ -269,6 +269,88 @@ def test_block_and_chunk_boundaries(monkeypatch):
     np.testing.assert_allclose(mutual_information(mixed, mixed_card, 0.5, w), expected_mixed, atol=2e-6)
 
 
+def _binary_reference(X, weights, prior):
+    """Float64 joint entropies and mutual information of every pair of binary columns.
+
+    The four cells of every pair table are counted directly with float64
+    products of indicator columns (no float32, no cell derived from the column
+    sums), and the entropies of the smoothed tables come from scipy.stats.entropy.
+    """
+    w = np.ones(X.shape[0]) if weights is None else weights
+    one = X.astype(np.float64)
+    zero = 1.0 - one
+    cells = np.stack([(w[:, None] * a).T @ b for a in (zero, one) for b in (zero, one)]) + prior
+    joint = scipy_entropy(cells, axis=0)
+    h_row = scipy_entropy(np.stack([cells[0] + cells[1], cells[2] + cells[3]]), axis=0)
+    information = h_row + h_row.T - joint
+    np.fill_diagonal(information, 0.0)
+    return joint, information
+
+
+def _binary_sample(rng, N, n):
+    """Columns of very different densities, plus a copy, a complement and a constant column."""
+    X = (rng.random((N, n)) < rng.uniform(0.002, 0.5, n)).astype(np.uint8)
+    X[:, 1] = X[:, 0]
+    X[:, 2] = 1 - X[:, 3]
+    X[:, -1] = 0
+    return X
+
+
+@pytest.mark.parametrize(
+    "N, prior, weighted",
+    [
+        (300, 1.0, False),  # cells all at least the prior: logarithms taken without clamping
+        (300, 0.0, False),  # empty cells
+        (300, 1e-9, False),  # a prior too small to keep cells away from 0 in float32
+        (300, 0.5, True),
+        (70000, 1.0, False),  # counts far above the float32 cancellation range of naive sums
+    ],
+)
+def test_binary_path_against_a_float64_reference(N, prior, weighted):
+    rng = np.random.default_rng(N + int(10 * prior) + weighted)
+    X = _binary_sample(rng, N, 40)
+    w = rng.random(N) * 3.0 if weighted else None
+    joint, information = _binary_reference(X, w, prior)
+    got = mutual_information(X, 2, prior, w)
+    got_joint = joint_entropy(X, 2, w, prior)
+    off = ~np.eye(40, dtype=bool)
+    # Unweighted counts are exact in float32, so only the logarithms round: within 1e-6 nats.
+    # Weighted counts are float32 sums themselves; a cell that should be nearly empty (the
+    # complement pair) then moves c log c by about 1.5e-6 nats.
+    tolerance = 3e-6 if weighted else 1e-6
+    np.testing.assert_allclose(got, information, atol=tolerance, rtol=0)
+    np.testing.assert_allclose(got_joint[off], joint[off], atol=tolerance, rtol=0)
+    np.testing.assert_array_equal(got, got.T)
+    np.testing.assert_array_equal(got_joint, got_joint.T)
+    np.testing.assert_array_equal(np.diag(got), 0.0)
+    assert got.min() >= 0.0
+
+
+@pytest.mark.parametrize("card", [2, 3])
+def test_information_matrix_is_mutual_information_in_float32(card):
+    # The unchecked float32 entry point used by the dependency tree fit.
+    rng = np.random.default_rng(16)
+    X = _sample(rng, 400, np.full(9, card))
+    w = rng.random(400)
+    for weights, prior in ((None, 1.0), (None, 0.0), (w, 0.5)):
+        fast = info._information_matrix(X, np.full(9, card), weights, prior)
+        assert fast.dtype == np.float32
+        np.testing.assert_array_equal(fast.astype(np.float64), mutual_information(X, card, prior, weights))
+
+
+def test_binary_blocks_do_not_change_the_result(monkeypatch):
+    # Rows of the upper triangle are processed in blocks whose height grows as the rows get
+    # shorter; any block size must give the same numbers, bit for bit.
+    rng = np.random.default_rng(17)
+    X = _binary_sample(rng, 500, 37)
+    expected = [mutual_information(X, 2, prior) for prior in (0.0, 1.0)] + [joint_entropy(X, 2, None, 1.0)]
+    for chunk in (1, 37, 100, 700):
+        monkeypatch.setattr(info, "_CHUNK_CELLS", chunk)
+        got = [mutual_information(X, 2, prior) for prior in (0.0, 1.0)] + [joint_entropy(X, 2, None, 1.0)]
+        for value, reference in zip(got, expected):
+            np.testing.assert_array_equal(value, reference)
+
+
 # -- edge cases -------------------------------------------------------------------------------
 def test_single_variable():
     X = np.array([[0], [1], [1], [2]], dtype=np.uint8)

@@ -12,7 +12,9 @@ import numpy as np
 import pytest
 import scipy.stats
 
+from optim.info import mutual_information
 from optim.models import DependencyTree
+from optim.models.spanning import maximum_spanning_tree, tree_weight
 
 
 # -- helpers written from the definitions ---------------------------------------------------
@@ -366,6 +368,49 @@ def test_edge_weights_with_prior_are_the_information_of_the_smoothed_pair_table(
         product = np.outer(joint.sum(axis=1), joint.sum(axis=0))
         expected = scipy.stats.entropy(joint.ravel(), product.ravel())
         assert model.edge_information[child] == pytest.approx(expected, abs=1e-5)
+
+
+@pytest.mark.parametrize("cardinality, prior", [(2, 1.0), (2, 0.0), (3, 0.5)])
+def test_fit_takes_the_tree_of_the_public_functions(cardinality, prior):
+    # fit uses unchecked float32 shortcuts of mutual_information and maximum_spanning_tree; with
+    # few rows and copied columns many weights tie exactly, and the tree must still be the one
+    # the public functions give, whose weight is that of networkx's maximum spanning tree.
+    rng = np.random.default_rng(30 + cardinality)
+    X = rng.integers(0, cardinality, (12, 30)).astype(np.uint8)
+    X[:, 10:20] = X[:, :10]
+    X[:, 25] = 0
+    for root in (0, 17):
+        model = DependencyTree(cardinality=cardinality, prior=prior, root=root).fit(X)
+        information = mutual_information(X, cardinality, prior)
+        parents, order = maximum_spanning_tree(information, root=root)
+        np.testing.assert_array_equal(model.parents, parents)
+        np.testing.assert_array_equal(model.order, order)
+        child = np.flatnonzero(parents >= 0)
+        np.testing.assert_array_equal(model.edge_information[child], information[child, parents[child]])
+        graph = nx.Graph()
+        for i, j in itertools.combinations(range(30), 2):
+            graph.add_edge(i, j, weight=information[i, j])
+        assert tree_weight(information, parents) == pytest.approx(
+            nx.maximum_spanning_tree(graph).size(weight="weight"), rel=1e-12
+        )
+
+
+def test_binary_edge_counts_from_the_product_equal_counts_of_the_sample():
+    # For unweighted binary data fit reads the edge tables off the matrix product behind the
+    # mutual information; they must equal the tables counted row by row with numpy (here with a
+    # row count that is no multiple of 8, for the bit-packed counter used otherwise).
+    rng = np.random.default_rng(31)
+    X = (rng.random((203, 25)) < rng.uniform(0.05, 0.95, 25)).astype(np.uint8)
+    X[:, 7] = X[:, 3]
+    model = DependencyTree(cardinality=2, prior=0.0, root=4).fit(X)
+    par = np.where(model.parents < 0, np.arange(25), model.parents)
+    expected = np.zeros((25, 2, 2))
+    for i in range(25):
+        np.add.at(expected[i], (X[:, par[i]], X[:, i]), 1.0)
+    np.testing.assert_array_equal(model._edge_counts(X, None, model.parents), expected)
+    conditional = expected / expected.sum(axis=2, keepdims=True)
+    child = np.flatnonzero(model.parents >= 0)
+    np.testing.assert_allclose(model.conditionals[child], conditional[child], rtol=1e-12)
 
 
 def test_edges_parents_and_order_are_consistent():

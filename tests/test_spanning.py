@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 from optim.info import mutual_information
-from optim.models.spanning import edges_from_parents, maximum_spanning_tree, tree_weight
+from optim.models.spanning import _prim, _prim_nonnegative, edges_from_parents, maximum_spanning_tree, tree_weight
 
 
 def _random_weights(rng, n):
@@ -104,6 +104,106 @@ def test_ties_are_broken_by_lowest_index():
     parents, order = maximum_spanning_tree(weights)
     np.testing.assert_array_equal(order, [0, 2, 3, 1])
     np.testing.assert_array_equal(parents, [-1, 0, 0, 0])
+
+
+def _slow_prim(weights, root):
+    """Prim's rules written out as a loop over the nodes outside the tree, for small n.
+
+    The best edge from the tree to an outside node joins next; among equal weights the lowest
+    outside index wins, and for that node the tree neighbour that joined first is its parent.
+    """
+    n = weights.shape[0]
+    inside, parents = [root], np.full(n, -1)
+    while len(inside) < n:
+        best = (-np.inf, None, None)
+        for node in range(n):
+            if node in inside:
+                continue
+            for tree_node in inside:  # in joining order: a later equal weight does not replace it
+                if weights[tree_node, node] > best[0]:
+                    best = (weights[tree_node, node], node, tree_node)
+        _, node, tree_node = best
+        inside.append(node)
+        parents[node] = tree_node
+    return parents, np.array(inside)
+
+
+def _nonnegative_weights(rng, n, levels=None):
+    """Symmetric non-negative weights with a zero diagonal: continuous, or from ``levels`` values (ties)."""
+    if levels is None:
+        half = np.abs(rng.normal(size=(n, n)))
+    else:
+        half = rng.integers(0, levels, (n, n)).astype(np.float64)
+    weights = np.triu(half, k=1)
+    return weights + weights.T
+
+
+@pytest.mark.parametrize("n", [2, 3, 10, 200])
+@pytest.mark.parametrize("dtype", [np.float32, np.float64])
+def test_fast_path_for_nonnegative_weights_matches_networkx(n, dtype):
+    # The fast path (bits read as integers) serves the dependency tree (float32) and the public
+    # function on exactly symmetric non-negative input (float64); it must give the general
+    # path's tree, the unique maximum spanning tree here (continuous weights, networkx).
+    rng = np.random.default_rng(100 + n)
+    weights = _nonnegative_weights(rng, n).astype(dtype)
+    as_float64 = weights.astype(np.float64)
+    reference = nx.maximum_spanning_tree(_graph(as_float64))
+    expected = _prim(weights, n // 2)
+    parents, order = _prim_nonnegative(weights, n // 2)
+    _assert_is_tree(parents, order, n // 2)
+    np.testing.assert_array_equal(parents, expected[0])
+    np.testing.assert_array_equal(order, expected[1])
+    assert {frozenset(e) for e in edges_from_parents(parents).tolist()} == {
+        frozenset(e) for e in reference.edges()
+    }
+    public = maximum_spanning_tree(as_float64, root=n // 2)
+    np.testing.assert_array_equal(public[0], parents)
+    np.testing.assert_array_equal(public[1], order)
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+@pytest.mark.parametrize("levels", [1, 2, 3])
+def test_many_ties_give_one_tree_on_every_path(seed, levels):
+    # Weights from {0, ..., levels - 1}: most edges tie (all of them for levels = 1). Prim's rules
+    # fix one tree; the public function, the general and the fast path must all give the one of
+    # the slow loop, with the weight of networkx's maximum spanning tree.
+    rng = np.random.default_rng(seed)
+    n = 30
+    weights = _nonnegative_weights(rng, n, levels)
+    parents, order = maximum_spanning_tree(weights, root=3)
+    _assert_is_tree(parents, order, 3)
+    slow_parents, slow_order = _slow_prim(weights, 3)
+    np.testing.assert_array_equal(parents, slow_parents)
+    np.testing.assert_array_equal(order, slow_order)
+    assert tree_weight(weights, parents) == nx.maximum_spanning_tree(_graph(weights)).size(weight="weight")
+    for matrix in (weights, weights.astype(np.float32)):
+        for path in (_prim, _prim_nonnegative):
+            again = path(matrix, 3)
+            np.testing.assert_array_equal(again[0], parents)
+            np.testing.assert_array_equal(again[1], order)
+
+
+def test_negative_zero_and_negative_weights_take_the_general_path():
+    # -0.0 has its sign bit set, so the fast path would misread it; the public function must
+    # notice and still follow Prim's rules (-0.0 == 0.0: they tie).
+    weights = np.array([[0.0, -0.0, 0.0], [-0.0, 0.0, 1.0], [0.0, 1.0, 0.0]])
+    parents, order = maximum_spanning_tree(weights)
+    np.testing.assert_array_equal(order, [0, 1, 2])
+    np.testing.assert_array_equal(parents, [-1, 0, 1])
+    np.testing.assert_array_equal(parents, _slow_prim(weights, 0)[0])
+    shifted = _nonnegative_weights(np.random.default_rng(5), 12) - 0.5
+    np.testing.assert_array_equal(maximum_spanning_tree(shifted)[0], _slow_prim(shifted, 0)[0])
+
+
+def test_nearly_symmetric_weights_take_the_general_path():
+    # Within the symmetry tolerance but not exactly symmetric: the fast path needs exact symmetry
+    # (it looks the parents up in each node's own row), so the general path must serve.
+    rng = np.random.default_rng(6)
+    weights = _nonnegative_weights(rng, 15)
+    nudged = weights + np.triu(rng.random((15, 15)) * 1e-9, k=1)
+    parents, order = maximum_spanning_tree(nudged)
+    np.testing.assert_array_equal(parents, _prim(nudged, 0)[0])
+    np.testing.assert_array_equal(parents, _slow_prim(nudged, 0)[0])
 
 
 def test_tree_weight_and_edges():

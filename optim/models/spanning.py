@@ -17,8 +17,9 @@ __all__ = ["maximum_spanning_tree", "tree_weight", "edges_from_parents"]
 _SYMMETRY_TOLERANCE = 1e-6
 
 
-def _check_weight_matrix(weights, caller: str) -> np.ndarray:
-    """``weights`` as a float64 array (a copy only when its diagonal must be cleared), after checks."""
+def _check_weight_matrix(weights, caller: str):
+    """``(matrix, exact)``: ``weights`` as a float64 array (a copy only when its diagonal must be
+    cleared), after checks, and whether it is exactly symmetric."""
     try:
         matrix = np.asarray(weights, dtype=np.float64)
     except (TypeError, ValueError):
@@ -42,6 +43,8 @@ def _check_weight_matrix(weights, caller: str) -> np.ndarray:
             )
         matrix = matrix.copy()
         np.fill_diagonal(matrix, 0.0)
+    if (matrix == matrix.T).all():
+        return matrix, True
     gap = matrix - matrix.T
     np.abs(gap, out=gap)
     largest = max(abs(float(matrix.max())), abs(float(matrix.min())), 1.0)
@@ -51,7 +54,7 @@ def _check_weight_matrix(weights, caller: str) -> np.ndarray:
             f"The 'weights' parameter of {caller} must be symmetric. Got weights[{row}, {col}] = "
             f"{matrix[row, col]} but weights[{col}, {row}] = {matrix[col, row]} instead."
         )
-    return matrix
+    return matrix, False
 
 
 def _check_parents(parents, caller: str) -> np.ndarray:
@@ -99,7 +102,9 @@ def maximum_spanning_tree(weights, root=0):
     vector operations per added node, so the cost is O(n^2). Ties are broken
     deterministically: among outside nodes with the same best weight the
     lowest index joins first; among equally good tree neighbours the one that
-    joined first stays the parent.
+    joined first stays the parent. Exactly symmetric non-negative weights
+    (mutual information, for one) take a faster form of the same steps, with
+    the same result.
 
     Parameters
     ----------
@@ -122,34 +127,112 @@ def maximum_spanning_tree(weights, root=0):
     Bell System Technical Journal 36(6), 1957.
     """
     caller = "maximum_spanning_tree"
-    matrix = _check_weight_matrix(weights, caller)
+    matrix, exact = _check_weight_matrix(weights, caller)
     n = matrix.shape[0]
     if isinstance(root, (bool, np.bool_)) or not isinstance(root, numbers.Integral) or not 0 <= root < n:
         raise ValueError(
             f"The 'root' parameter of {caller} must be a node index in 0..{n - 1}. Got {root!r} instead."
         )
-    root = int(root)
-    parents = np.full(n, -1, dtype=np.int64)
-    order = np.empty(n, dtype=np.int64)
-    order[0] = root
+    if exact and matrix.view(np.int64).min() >= 0:  # no sign bit anywhere: no negative, no -0.0
+        return _prim_nonnegative(matrix, int(root))
+    return _prim(matrix, int(root))
+
+
+def _prim(matrix: np.ndarray, root: int):
+    """:func:`maximum_spanning_tree` without the checks, for any weights it accepts.
+
+    ``matrix`` (float32 or float64, symmetric, finite off the diagonal) is
+    used as given; ``root`` must be a valid node index.
+
+    References
+    ----------
+    R. C. Prim, "Shortest connection networks and some generalizations",
+    Bell System Technical Journal 36(6), 1957.
+    """
+    n = matrix.shape[0]
+    order = [root]
     outside = np.ones(n, dtype=bool)
     outside[root] = False
     best = matrix[root].copy()
     best[root] = -np.inf
+    # A joined node is never improved again, so best_from ends as the parents.
     best_from = np.full(n, root, dtype=np.int64)
     improved = np.empty(n, dtype=bool)
-    for step in range(1, n):
-        node = int(best.argmax())
-        order[step] = node
-        parents[node] = best_from[node]
+    rows, argmax, greater, copyto, unset = list(matrix), best.argmax, np.greater, np.copyto, -np.inf
+    for _ in range(n - 1):
+        node = argmax()
+        order.append(node)
         outside[node] = False
-        best[node] = -np.inf
-        row = matrix[node]
-        np.greater(row, best, out=improved)
+        best[node] = unset
+        row = rows[node]
+        greater(row, best, out=improved)
         improved &= outside
-        np.copyto(best_from, node, where=improved)
-        np.copyto(best, row, where=improved)
-    return parents, order
+        copyto(best_from, node, where=improved)
+        copyto(best, row, where=improved)
+    best_from[root] = -1
+    return best_from, np.array(order, dtype=np.int64)
+
+
+def _prim_nonnegative(matrix: np.ndarray, root: int):
+    """:func:`_prim` for an exactly symmetric matrix of non-negative numbers: the same tree, faster.
+
+    ``matrix`` must be float32 or float64, exactly symmetric, with finite
+    off-diagonal entries whose sign bit is clear (>= 0, no -0.0); the diagonal
+    is ignored; nothing is checked. Read as unsigned integers, the bits of such
+    floats order like the floats. A node in the tree gets the key with every
+    bit set: read unsigned, no row can beat it, so one ``maximum`` per step
+    keeps it; read signed (-1), it is below every real key, so ``argmax``
+    passes it by. Each step is then one ``argmax`` and one ``maximum`` instead
+    of five vector operations; the parents are found after the loop
+    (:func:`_parents_from_join_weights`).
+
+    References
+    ----------
+    R. C. Prim, "Shortest connection networks and some generalizations",
+    Bell System Technical Journal 36(6), 1957.
+    """
+    n = matrix.shape[0]
+    unsigned, signed = (np.uint32, np.int32) if matrix.itemsize == 4 else (np.uint64, np.int64)
+    keys = matrix.view(unsigned)
+    best = keys[root].copy()
+    as_signed = best.view(signed)
+    as_signed[root] = -1
+    joined_with = np.zeros(n, dtype=unsigned)
+    order = [root]
+    rows, argmax, maximum = list(keys), as_signed.argmax, np.maximum
+    for _ in range(n - 1):
+        node = argmax()
+        order.append(node)
+        joined_with[node] = best[node]
+        as_signed[node] = -1
+        maximum(best, rows[node], out=best)
+    order = np.array(order, dtype=np.int64)
+    return _parents_from_join_weights(matrix, order, joined_with.view(matrix.dtype)), order
+
+
+def _parents_from_join_weights(matrix: np.ndarray, order: np.ndarray, weights: np.ndarray) -> np.ndarray:
+    """Prim's parents, given the order in which nodes joined and the weight each joined with.
+
+    The parent of node v is the earliest-joined node u before v with
+    ``matrix[v, u] == weights[v]`` (the row of v equals its column: the matrix
+    is exactly symmetric). Mostly a single entry of the row has that weight
+    and is taken directly; rows with ties are settled by joining position.
+    """
+    n = order.shape[0]
+    position = np.empty(n, dtype=np.int64)
+    position[order] = np.arange(n)
+    equal = matrix == weights[:, None]
+    parents = equal.argmax(axis=1)
+    nodes = np.arange(n)
+    equal[nodes, parents] = False
+    tied = equal.any(axis=1)
+    equal[nodes, parents] = True
+    unclear = np.flatnonzero(tied | (position[parents] >= position))
+    if unclear.size:
+        earlier = equal[unclear] & (position[None, :] < position[unclear, None])
+        parents[unclear] = np.where(earlier, position[None, :], n).argmin(axis=1)
+    parents[order[0]] = -1
+    return parents
 
 
 def tree_weight(weights, parents) -> float:

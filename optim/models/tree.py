@@ -6,10 +6,10 @@ from typing import Optional, Sequence
 
 import numpy as np
 
-from optim.info import mutual_information
+from optim.info import _information_and_pair_ones
 from optim.models._tables import draw_from_rows, normalise_rows, table_entropy, valid_mask
 from optim.models.base import Model, validate_samples
-from optim.models.spanning import maximum_spanning_tree
+from optim.models.spanning import _prim_nonnegative
 
 __all__ = ["DependencyTree"]
 
@@ -103,13 +103,15 @@ class DependencyTree(Model):
         if not 0 <= self.root < n:
             raise ValueError(f"The 'root' parameter of DependencyTree must be in 0..{n - 1}. Got {self.root}.")
         if n == 1:
-            information = np.zeros((1, 1))
+            information, pair_ones = np.zeros((1, 1)), None
             parents, order = np.array([-1]), np.array([0])
         else:
-            information = mutual_information(X, cardinality=self.cardinality, prior=self.prior, weights=w)
-            parents, order = maximum_spanning_tree(information, root=self.root)
+            # X, the cardinality and the weights are checked already; the float32 matrix is exactly
+            # symmetric, finite and non-negative, as the fast spanning tree needs.
+            information, pair_ones = _information_and_pair_ones(X, self.cardinality, w, self.prior)
+            parents, order = _prim_nonnegative(information, self.root)
         parents = np.asarray(parents, dtype=np.int64)
-        counts = self._edge_counts(X, w, parents)
+        counts = self._edge_counts(X, w, parents, pair_ones)
         total = float(X.shape[0] if w is None else w.sum())
         parents = self._prune(parents, counts, total)
         self.parents = parents
@@ -126,10 +128,13 @@ class DependencyTree(Model):
         """Hook for subclasses that drop edges; the tree keeps every edge."""
         return parents
 
-    def _edge_counts(self, X: np.ndarray, w: Optional[np.ndarray], parents: np.ndarray) -> np.ndarray:
+    def _edge_counts(self, X: np.ndarray, w: Optional[np.ndarray], parents: np.ndarray,
+                     pair_ones: Optional[np.ndarray] = None) -> np.ndarray:
         """Joint counts ``[i, value of parent, value of i]`` for every variable and its tree parent.
 
         For the root the "parent" is the root itself, so only the diagonal is filled.
+        ``pair_ones``, when given, holds the exact number of rows with X_i = X_j = 1 for every
+        pair (unweighted binary data), so the counts are read from it instead of the sample.
         """
         n = X.shape[1]
         kmax = int(self.cardinality.max())
@@ -137,7 +142,11 @@ class DependencyTree(Model):
         if kmax == 2:
             counts = np.empty((n, 2, 2))
             if w is None:  # whole-number counts: the differences are exact
-                c11, c1 = _ones_with_parent(X, par)
+                if pair_ones is None:
+                    c11, c1 = _ones_with_parent(X, par)
+                else:
+                    c11 = pair_ones[np.arange(n), par].astype(np.float64)
+                    c1 = np.diagonal(pair_ones).astype(np.float64)
                 p1 = c1[par]
                 counts[:, 1, 1] = c11
                 counts[:, 0, 1] = c1 - c11
@@ -163,9 +172,11 @@ class DependencyTree(Model):
         n, kmax, _ = counts.shape
         card = self.cardinality
         mask = valid_mask(card, kmax)  # (n, kmax) valid values of each variable
-        par = np.where(parents < 0, np.arange(n), parents)
-        cell_mask = mask[par][:, :, None] & mask[:, None, :]
-        cond = normalise_rows(np.where(cell_mask, counts + self.prior, 0.0))
+        smoothed = counts + self.prior
+        if not mask.all():  # cells beyond a variable's (or its parent's) cardinality stay empty
+            par = np.where(parents < 0, np.arange(n), parents)
+            smoothed[~(mask[par][:, :, None] & mask[:, None, :])] = 0.0
+        cond = normalise_rows(smoothed)
         roots = np.flatnonzero(parents < 0)
         if roots.size:
             marginal = counts[roots].sum(axis=1)  # sum over the parent axis
