@@ -10,7 +10,7 @@ import numpy as np
 from optim.methods.base import Method, StepOutcome, uniform_candidates
 from optim.models import make_model
 
-__all__ = ["DistributionSearch", "truncation_select"]
+__all__ = ["DistributionSearch", "truncation_select", "survivor_count"]
 
 
 def truncation_select(fitness: np.ndarray, fraction: float) -> np.ndarray:
@@ -23,9 +23,12 @@ def truncation_select(fitness: np.ndarray, fraction: float) -> np.ndarray:
     H. Mühlenbein and D. Schlierkamp-Voosen, "Predictive models for the breeder
     genetic algorithm", Evolutionary Computation 1(1), 1993 (truncation selection).
     """
-    count = fitness.shape[0]
-    keep = min(count, max(2, int(np.ceil(fraction * count - 1e-9))))
-    return np.argsort(-fitness, kind="stable")[:keep]
+    return np.argsort(-fitness, kind="stable")[:survivor_count(fitness.shape[0], fraction)]
+
+
+def survivor_count(count: int, fraction: float) -> int:
+    """How many of ``count`` candidates :func:`truncation_select` keeps."""
+    return min(count, max(2, int(np.ceil(fraction * count - 1e-9))))
 
 
 class DistributionSearch(Method):

@@ -7,7 +7,7 @@ from typing import List, Optional
 import numpy as np
 
 from optim.methods.base import Method, StepOutcome
-from optim.methods.eda import DistributionSearch, truncation_select
+from optim.methods.eda import DistributionSearch, survivor_count, truncation_select
 
 __all__ = ["PopulationLadder", "SMALLEST_POPULATION", "STALL_GENERATIONS", "RATE_WINDOW", "SLOW_RATE"]
 
@@ -162,7 +162,7 @@ class PopulationLadder(Method):
             if reason is not None and self._next_population() <= budget:
                 self._climb(reason)
         run = self.run
-        carried = 0 if run.pool is None else truncation_select(run.pool_fitness, self.select).shape[0]
+        carried = 0 if run.pool is None else survivor_count(run.pool.shape[0], self.select)
         outcome = run.step(fitness, budget)
         self.run_evaluations += outcome.evaluations
         self.rungs[-1]["evaluations"] = self.run_evaluations
