@@ -100,7 +100,6 @@ class PopulationLadder(Method):
         self.survivor_mean = -np.inf
         self.stale = 0
         self.rates: List[float] = []
-        self.run_evaluations = 0
         self.rungs: List[dict] = []
 
     # -- the runs ---------------------------------------------------------------------------------
@@ -127,12 +126,12 @@ class PopulationLadder(Method):
 
     def _climb(self, reason: Optional[str]) -> None:
         if self.run is not None:
-            self.rungs[-1].update(ending=reason, evaluations=self.run_evaluations)
+            self.rungs[-1]["ending"] = reason
         population = self._next_population()
         self.run = DistributionSearch(self.problem, self.rng, model=self.model_kind, population=population,
                                       select=self.select, prior=self.prior, elitism=self.elitism, alpha=self.alpha)
         self.rungs.append({"population": population, "evaluations": 0, "ending": "live"})
-        self.survivor_mean, self.stale, self.rates, self.run_evaluations = -np.inf, 0, [], 0
+        self.survivor_mean, self.stale, self.rates = -np.inf, 0, []
 
     def _observe(self, carried: int, drawn: int) -> None:
         """Update the stall count and the replacement rate after a generation that drew ``drawn`` candidates.
@@ -164,8 +163,7 @@ class PopulationLadder(Method):
         run = self.run
         carried = 0 if run.pool is None else survivor_count(run.pool.shape[0], self.select)
         outcome = run.step(fitness, budget)
-        self.run_evaluations += outcome.evaluations
-        self.rungs[-1]["evaluations"] = self.run_evaluations
+        self.rungs[-1]["evaluations"] += outcome.evaluations
         self._observe(carried if run.elitism else 0, outcome.evaluations)
         return StepOutcome(outcome.candidates, outcome.fitness, outcome.seconds)
 
@@ -192,7 +190,6 @@ class PopulationLadder(Method):
             "survivor_mean": np.array([self.survivor_mean], dtype=np.float64),
             "stale": self.stale,
             "rates": np.array(self.rates, dtype=np.float64),
-            "run_evaluations": self.run_evaluations,
             "rung_populations": np.array([r["population"] for r in self.rungs], dtype=np.int64),
             "rung_evaluations": np.array([r["evaluations"] for r in self.rungs], dtype=np.int64),
             "rung_endings": np.array([ENDINGS.index(r["ending"]) for r in self.rungs], dtype=np.int64),
@@ -207,7 +204,6 @@ class PopulationLadder(Method):
         self.survivor_mean = float(np.asarray(state["survivor_mean"], dtype=np.float64).reshape(-1)[0])
         self.stale = int(state["stale"])
         self.rates = [float(r) for r in np.asarray(state["rates"]).tolist()]
-        self.run_evaluations = int(state["run_evaluations"])
         self.rungs = [{"population": int(p), "evaluations": int(e), "ending": ENDINGS[int(k)]}
                       for p, e, k in zip(np.asarray(state["rung_populations"]).tolist(),
                                          np.asarray(state["rung_evaluations"]).tolist(),
