@@ -20,8 +20,9 @@ from optim.records import atomic_write
 
 __all__ = ["FORMAT", "save_checkpoint", "load_checkpoint", "flatten_state", "unflatten_state"]
 
-#: Identifies the layout of checkpoint files; bumped when it changes incompatibly.
-FORMAT = "optim-checkpoint-1"
+#: Identifies the layout of checkpoint files and of the method states inside them; bumped when either
+#: changes incompatibly (2: the population ladder runs one population at a time).
+FORMAT = "optim-checkpoint-2"
 
 _ARRAY = "__array__"
 
