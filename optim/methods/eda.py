@@ -84,6 +84,7 @@ class DistributionSearch(Method):
         options = {"alpha": alpha} if model == "forest" else {}
         self._model = make_model(model, problem.cardinality, prior=prior, **options)
         self.pool: Optional[np.ndarray] = None
+        self._selection = (None, None)  # (the pool_fitness array it was made for, its survivors)
         self.pool_fitness: Optional[np.ndarray] = None
         self._converged = False
 
@@ -92,7 +93,7 @@ class DistributionSearch(Method):
             return self._first_step(fitness, budget)
         seconds = {}
         start = time.perf_counter()
-        kept = truncation_select(self.pool_fitness, self.select)
+        kept = self.selected()
         survivors, survivor_fitness = self.pool[kept], self.pool_fitness[kept]
         self._converged = bool(np.all(survivors == survivors[:1]))
         self._model.fit(survivors)
@@ -123,6 +124,14 @@ class DistributionSearch(Method):
         f = fitness(X)
         self.pool, self.pool_fitness = X, f
         return StepOutcome(X, f, seconds)
+
+    def selected(self) -> np.ndarray:
+        """Indices of the current pool's survivors (:func:`truncation_select`), made once per pool."""
+        made_for, kept = self._selection
+        if made_for is not self.pool_fitness:
+            kept = truncation_select(self.pool_fitness, self.select)
+            self._selection = (self.pool_fitness, kept)
+        return kept
 
     @property
     def model_entropy(self):

@@ -7,7 +7,7 @@ from typing import List, Optional
 import numpy as np
 
 from optim.methods.base import Method, StepOutcome
-from optim.methods.eda import DistributionSearch, survivor_count, truncation_select
+from optim.methods.eda import DistributionSearch, survivor_count
 
 __all__ = ["PopulationLadder", "SMALLEST_POPULATION", "STALL_GENERATIONS", "RATE_WINDOW", "SLOW_RATE"]
 
@@ -140,7 +140,7 @@ class PopulationLadder(Method):
         new candidates; the rate is the share of those new candidates that the next selection keeps.
         """
         pool_fitness = self.run.pool_fitness
-        kept = truncation_select(pool_fitness, self.select)
+        kept = self.run.selected()
         values = pool_fitness[kept]
         values = values[np.isfinite(values)]
         mean = float(values.mean()) if values.size else -np.inf
