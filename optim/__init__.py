@@ -3,7 +3,7 @@
 __version__ = "0.1.0"
 
 from optim.api import maximize, minimize, optimize
-from optim.evaluate import Evaluator
+from optim.evaluation.evaluator import Evaluator
 from optim.models import DependencyForest, DependencyTree, Univariate
 from optim.problem import FunctionProblem, Problem
 from optim.search import Search, SearchResult, SearchSettings, StopRules

@@ -28,8 +28,8 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from optim.config import load_run_config  # noqa: E402
-from optim.runner import build_problem  # noqa: E402
+from optim.runs.config import load_run_config  # noqa: E402
+from optim.runs.runner import build_problem  # noqa: E402
 from optim.search import Search, SearchSettings, StopRules  # noqa: E402
 
 __all__ = ["Row", "ROWS", "measure", "main"]

@@ -6,7 +6,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from optim.cli import main
-from optim.config import load_run_config, parse_yaml_text, parse_run_config
+from optim.runs.config import load_run_config, parse_yaml_text, parse_run_config
 from optim.errors import ConfigError
 
 GOOD = """\

@@ -11,12 +11,12 @@ import numpy as np
 import pytest
 from scipy import stats
 
-import optim.bench as bench
+import optim.bench.suite as bench
 from optim import cli
-from optim.bench import QUICK, run_bench, write_bench
-from optim.bench_report import TARGETS, check_targets, format_text
-from optim.bench_search import Task, fit_exponent, problem_spec, run_task, run_tasks, summarise
-from optim.bench_timing import time_ratios
+from optim.bench.suite import QUICK, run_bench, write_bench
+from optim.bench.report import TARGETS, check_targets, format_text
+from optim.bench.efficiency import Task, fit_exponent, problem_spec, run_task, run_tasks, summarise
+from optim.bench.timing import time_ratios
 from optim.models.tree import DependencyTree
 
 TINY = dataclasses.replace(

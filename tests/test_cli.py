@@ -47,7 +47,7 @@ def test_run_writes_a_complete_run_folder(tmp_path, capsys):
     assert result["evaluations"] == log[-1]["evaluations"] and result["generations"] == len(log)
     for key in ("evaluations", "generations", "seed", "version"):
         assert key in result
-    from optim.records import RunFolder
+    from optim.runs.folder import RunFolder
 
     candidates, scores, generation = RunFolder(folder).read_evaluated()
     assert candidates.shape == (result["evaluations"], 24) and scores.shape == (result["evaluations"],)

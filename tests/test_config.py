@@ -4,7 +4,7 @@ import textwrap
 
 import pytest
 
-from optim.config import load_run_config
+from optim.runs.config import load_run_config
 from optim.errors import ConfigError
 from optim.search import SearchSettings, StopRules
 

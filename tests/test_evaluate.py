@@ -1,4 +1,4 @@
-"""optim.evaluate and the local backends of optim.workers, one piece at a time.
+"""optim.evaluation.evaluator and the local backends of optim.evaluation.backends, one piece at a time.
 
 Reference values are the objectives themselves evaluated directly in this
 process (their own vectorised ``evaluate``) or, for shipping, in a separate
@@ -16,11 +16,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-import problems
+from optim import objectives
 from optim.errors import OptimError
-from optim.evaluate import FAILURE_KINDS, EvaluationFailure, Evaluator, candidate_text, score_candidates
+from optim.evaluation.evaluator import FAILURE_KINDS, EvaluationFailure, Evaluator, candidate_text, score_candidates
 from optim.problem import FunctionProblem, Problem
-from optim.workers import (ProcessBackend, ThreadBackend, WorkerError, backend_kind, make_backend,
+from optim.evaluation.backends import (ProcessBackend, ThreadBackend, WorkerError, backend_kind, make_backend,
                            ship_problem)
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -29,7 +29,7 @@ OBJECTIVES = Path(__file__).resolve().parent / "data" / "objectives_parallel" / 
 
 def load(name, **params):
     """A fixture objective loaded the way a config loads a user's file."""
-    return problems.make_problem(f"{OBJECTIVES}:{name}", params)
+    return objectives.make_problem(f"{OBJECTIVES}:{name}", params)
 
 
 def all_codes(n, rng, count):
@@ -237,7 +237,7 @@ def test_a_user_file_objective_is_shipped_by_value():
     problem = load("score", n=8)
     payload = ship_problem(problem)
     X = np.random.default_rng(4).integers(0, 2, size=(12, 8), dtype=np.uint8)
-    script = ("import pickle, sys, numpy as np; from optim.evaluate import score_candidates; "
+    script = ("import pickle, sys, numpy as np; from optim.evaluation.evaluator import score_candidates; "
               "data = sys.stdin.buffer.read(); problem = pickle.loads(data[:-96]); "
               "X = np.frombuffer(data[-96:], dtype=np.uint8).reshape(12, 8); "
               "print(repr([o[0] if o[1] is None else o[1] for o in score_candidates(problem, X)]))")

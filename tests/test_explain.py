@@ -12,7 +12,7 @@ import scipy.linalg
 import scipy.stats
 
 from optim.cli import main
-from optim.explain import (
+from optim.explain.findings import (
     adjusted_effects,
     best_candidates,
     classify_pair,
@@ -26,8 +26,8 @@ from optim.explain import (
     wilson_interval,
 )
 from optim.info import mutual_information
-from optim.records import RunFolder, read_jsonl
-from problems.service_demo import PLANTED, service_latency
+from optim.runs.folder import RunFolder, read_jsonl
+from optim_problems.service_demo import PLANTED, service_latency
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "configs" / "service-latency.yaml"

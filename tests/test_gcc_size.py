@@ -17,9 +17,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from optim.config import load_run_config
-from optim.runner import build_problem, execute
-from problems.command import CommandProblem, ElfFormatError, elf_code_size, elf_sections
+from optim.runs.config import load_run_config
+from optim.runs.runner import build_problem, execute
+from optim.objectives.command import CommandProblem, ElfFormatError, elf_code_size, elf_sections
 
 ROOT = Path(__file__).resolve().parents[1]
 SOURCE = ROOT / "examples" / "gcc-size" / "wordfreq.c"

@@ -10,15 +10,15 @@ import copy
 import numpy as np
 import pytest
 
-from optim.checkpoint import load_checkpoint, save_checkpoint
-from optim.config import parse_run_config, parse_yaml_text
+from optim.runs.checkpoint import load_checkpoint, save_checkpoint
+from optim.runs.config import parse_run_config, parse_yaml_text
 from optim.errors import ConfigError
 from optim.methods import AUTO_STEP, HillClimber, PopulationLadder, RandomSearch, make_method
 from optim.methods.eda import truncation_select
 from optim.problem import FunctionProblem
 from optim.search import Search, SearchSettings, StopRules
-from problems.onemax import onemax
-from problems.trap import trap
+from optim_problems.onemax import onemax
+from optim_problems.trap import trap
 
 
 def _constant(n=40):
@@ -233,7 +233,7 @@ def test_state_is_a_copy():
 
 
 def test_checkpoint_file_round_trip_of_a_search_with_auto_population(tmp_path):
-    # Through optim.checkpoint's .npz format and Search.get_state/set_state, as `optim resume` does.
+    # Through optim.runs.checkpoint's .npz format and Search.get_state/set_state, as `optim resume` does.
     def fresh():
         return Search(onemax(50), SearchSettings(population="auto"), StopRules(evaluations=6000, target=None),
                       seed=5)

@@ -21,14 +21,14 @@ import numpy as np
 import pytest
 import yaml
 
-import problems
+from optim import objectives
 from optim.cli import main as optim_main
-from optim.config import load_run_config
+from optim.runs.config import load_run_config
 from optim.errors import ConfigError
-from optim.evaluate import Evaluator, candidate_text
-from optim.records import RunFolder, read_jsonl
-from optim.runner import execute, resume
-from optim.workers import ClusterUnavailable, WorkerError, worker_status
+from optim.evaluation.evaluator import Evaluator, candidate_text
+from optim.runs.folder import RunFolder, read_jsonl
+from optim.runs.runner import execute, resume
+from optim.evaluation.backends import ClusterUnavailable, WorkerError, worker_status
 
 ROOT = Path(__file__).resolve().parents[1]
 OBJECTIVES = Path(__file__).resolve().parent / "data" / "objectives_parallel" / "objectives.py"
@@ -113,7 +113,7 @@ def test_a_local_dask_cluster_lives_as_long_as_the_run(tmp_path):
 
 def test_the_objective_reaches_each_dask_worker_once_per_run(cluster):
     local, client = cluster
-    problem = problems.make_problem(f"{OBJECTIVES}:score", {"n": 16})
+    problem = objectives.make_problem(f"{OBJECTIVES}:score", {"n": 16})
     X = np.random.default_rng(8).integers(0, 2, size=(30, 16), dtype=np.uint8)
     before = {w: s["installs"] for w, s in client.run(worker_status).items()}
     with Evaluator(problem, dask=local.scheduler_address) as evaluator:
@@ -159,7 +159,7 @@ def test_a_hanging_evaluation_times_out_and_the_run_goes_on(tmp_path, cluster, w
 
 
 def test_every_fault_kind_is_recorded_and_the_run_completes(tmp_path):
-    module = sys.modules[problems.make_problem(f"{OBJECTIVES}:faults", {"n": 16}).function.__module__]
+    module = sys.modules[objectives.make_problem(f"{OBJECTIVES}:faults", {"n": 16}).function.__module__]
     for label, search in [("serial", {}), ("jobs", {"jobs": 2})]:
         folder = RunFolder(run(write_config(tmp_path, label, "faults", search=search)).folder.path)
         result = folder.read_result()
@@ -191,7 +191,7 @@ def test_the_cache_counts_calls_and_hits_and_changes_nothing_else(tmp_path):
     assert ([{k: v for k, v in r.items() if k not in counts} for r in cached["log"]]
             == [{k: v for k, v in r.items() if k not in counts} for r in plain["log"]])
     assert cached["evaluated"] == plain["evaluated"]
-    module = sys.modules[problems.make_problem(f"{OBJECTIVES}:score", {"n": 7}).function.__module__]
+    module = sys.modules[objectives.make_problem(f"{OBJECTIVES}:score", {"n": 7}).function.__module__]
     unlucky = np.all(candidates[:, :4] == module.UNLUCKY, axis=1)
     assert plain["log"][-1]["failures"] == len(plain["failures"]) == int(unlucky.sum())
     assert cached["log"][-1]["failures"] == len(cached["failures"]) == np.unique(candidates[unlucky], axis=0).shape[0]
@@ -253,7 +253,7 @@ def test_losing_the_scheduler_stops_the_run_with_a_checkpoint_to_resume(tmp_path
 
 def test_an_unreachable_scheduler_is_a_clear_error_with_a_checkpoint(tmp_path, monkeypatch):
     pytest.importorskip("distributed")
-    monkeypatch.setattr("optim.workers.CONNECT_TIMEOUT", 1.0)
+    monkeypatch.setattr("optim.evaluation.backends.CONNECT_TIMEOUT", 1.0)
     path = write_config(tmp_path, "nowhere", "score", search={"dask": "tcp://127.0.0.1:1"})
     with pytest.raises(ClusterUnavailable, match="cannot reach the Dask scheduler at 'tcp://127.0.0.1:1'") as caught:
         run(path)
@@ -264,7 +264,7 @@ def test_an_unreachable_scheduler_is_a_clear_error_with_a_checkpoint(tmp_path, m
 
 def test_dask_missing_is_a_clear_error(tmp_path, monkeypatch):
     monkeypatch.setitem(sys.modules, "distributed", None)  # what an environment without it looks like to import
-    problem = problems.make_problem(f"{OBJECTIVES}:score", {"n": 4})
+    problem = objectives.make_problem(f"{OBJECTIVES}:score", {"n": 4})
     with pytest.raises(WorkerError, match=re.escape("pip install 'optim[cluster]'")):
         Evaluator(problem, dask="local")(np.zeros((2, 4), np.uint8))
 
@@ -298,7 +298,7 @@ def test_config_checks_timeout_and_dask(tmp_path, key, value, expected):
 
 # -- the throughput benchmark (its figures are reported, never asserted) --------------------------
 def test_throughput_benchmark_reports_consistent_figures(monkeypatch):
-    from optim import bench_parallel
+    from optim.bench import throughput as bench_parallel
 
     monkeypatch.setattr("importlib.util.find_spec", lambda name: None)  # leave the Dask mode out: quick
     found = bench_parallel.throughput_benchmark(evaluations=4)

@@ -8,11 +8,11 @@ with a brute-force maximum over all 2^n strings.
 import numpy as np
 import pytest
 
-from problems.fourpeaks import FourPeaks, four_peaks
-from problems.hiff import Hiff, hiff
-from problems.ising import IsingRing, ising_ring
-from problems.onemax import OneMax, onemax
-from problems.trap import ConcatenatedTrap, trap
+from optim_problems.fourpeaks import FourPeaks, four_peaks
+from optim_problems.hiff import Hiff, hiff
+from optim_problems.ising import IsingRing, ising_ring
+from optim_problems.onemax import OneMax, onemax
+from optim_problems.trap import ConcatenatedTrap, trap
 
 
 def all_strings(n):

@@ -1,4 +1,4 @@
-"""Tests of problems.command: the external-command objective.
+"""Tests of optim.objectives.command: the external-command objective.
 
 The command is a small Python script (tests/data/commands/toy_tool.py) run
 with the current interpreter, so the tests need no other program.
@@ -15,10 +15,12 @@ import numpy as np
 import pytest
 import yaml
 
-import problems
-from optim.evaluate import EvaluationFailure, Evaluator
+import optim.objectives.command
+import optim.objectives.loader
+from optim import objectives
+from optim.evaluation.evaluator import EvaluationFailure, Evaluator
 from optim.search import Search, SearchSettings, StopRules
-from problems.command import CommandProblem, command
+from optim.objectives.command import CommandProblem, command
 
 DATA = Path(__file__).parent / "data" / "commands"
 TOOL = str(DATA / "toy_tool.py")
@@ -146,12 +148,12 @@ def test_bad_options_are_rejected_with_the_option_named(options, message):
 
 
 def test_the_registry_reports_bad_options_as_one_line_problem_errors():
-    with pytest.raises(problems.ProblemError, match=r"problem 'command': goal: expected minimize or maximize") as e:
-        problems.make_problem("command", dict(command=[PYTHON, "{flags}"], variables=SWITCHES,
+    with pytest.raises(objectives.ProblemError, match=r"problem 'command': goal: expected minimize or maximize") as e:
+        objectives.make_problem("command", dict(command=[PYTHON, "{flags}"], variables=SWITCHES,
                                               score={"last_number": True}, goal="less"))
     assert "\n" not in str(e.value)
-    with pytest.raises(problems.ProblemError, match="missing parameter 'goal'"):
-        problems.make_problem("command", dict(command=[PYTHON, "{flags}"], variables=SWITCHES,
+    with pytest.raises(objectives.ProblemError, match="missing parameter 'goal'"):
+        objectives.make_problem("command", dict(command=[PYTHON, "{flags}"], variables=SWITCHES,
                                               score={"last_number": True}))
 
 
@@ -322,20 +324,20 @@ def test_a_search_includes_the_start_and_never_ends_worse_than_it():
 
 
 def test_the_factory_documents_every_parameter_and_the_caution():
-    documented = {p.name: p.description for p in problems.factory_parameters(problems.get_factory("command"))}
+    documented = {p.name: p.description for p in objectives.factory_parameters(objectives.get_factory("command"))}
     assert set(documented) == {"command", "variables", "score", "goal", "timeout", "workdir", "env", "start",
                                "rerun", "shell", "config_dir"}
     assert all(documented.values())
     assert "DANGER" in documented["shell"]
     summary = command.__doc__.strip().splitlines()[0]
     assert "CAUTION" in summary and "your rights" in summary and "staging" in summary
-    assert "production" in problems.command.__doc__ and "your user rights" in problems.command.__doc__
+    assert "production" in optim.objectives.command.__doc__ and "your user rights" in optim.objectives.command.__doc__
 
 
 def test_a_config_run_records_failures_and_goes_on(tmp_path):
-    from optim.config import load_run_config
-    from optim.records import read_jsonl
-    from optim.runner import execute
+    from optim.runs.config import load_run_config
+    from optim.runs.folder import read_jsonl
+    from optim.runs.runner import execute
 
     executable_tool(tmp_path)
     config = {

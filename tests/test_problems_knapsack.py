@@ -1,4 +1,4 @@
-"""Tests of problems.knapsack: generator, readers, repair and penalty scores, DP reference."""
+"""Tests of optim_problems.knapsack: generator, readers, repair and penalty scores, DP reference."""
 
 from fractions import Fraction
 from pathlib import Path
@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 from scipy.optimize import Bounds, LinearConstraint, linprog, milp
 
-from problems._instances import InstanceFormatError, exhaustive_maximum
-from problems.knapsack import (
+from optim_problems._instances import InstanceFormatError, exhaustive_maximum
+from optim_problems.knapsack import (
     KINDS,
     KnapsackProblem,
     dp_knapsack,
@@ -19,7 +19,7 @@ from problems.knapsack import (
 )
 
 DATA = Path(__file__).parent / "data" / "instances"
-EXAMPLES = Path(__file__).parent.parent / "problems" / "instances"
+EXAMPLES = Path(__file__).parent.parent / "optim_problems" / "instances"
 
 
 def _slow_repair(weights, values, capacity, x):

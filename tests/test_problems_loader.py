@@ -7,9 +7,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-import problems
+import optim.objectives.command
+import optim.objectives.loader
+from optim import objectives
 from optim.problem import FunctionProblem, Problem
-from problems import (
+from optim.objectives import (
     PROBLEMS,
     REQUIRED,
     ProblemError,
@@ -18,7 +20,7 @@ from problems import (
     get_factory,
     make_problem,
 )
-from problems.loader import build_problem
+from optim.objectives.loader import build_problem
 
 DATA = Path(__file__).parent / "data" / "objectives"
 EXAMPLES = "example_objectives.py"
@@ -68,7 +70,7 @@ def test_registered_problem_with_parameters():
 
 
 def test_registry_entry_may_be_a_callable(monkeypatch):
-    monkeypatch.setitem(PROBLEMS, "tiny-onemax", lambda n=3: problems.make_problem("onemax", {"n": n}))
+    monkeypatch.setitem(PROBLEMS, "tiny-onemax", lambda n=3: objectives.make_problem("onemax", {"n": n}))
     assert "tiny-onemax" in available()
     assert make_problem("tiny-onemax").n == 3
 
@@ -89,7 +91,7 @@ def test_unknown_name_without_near_match():
 
 def test_problem_error_is_a_value_error():
     assert issubclass(ProblemError, ValueError)
-    assert problems.ProblemError is problems.loader.ProblemError
+    assert objectives.ProblemError is optim.objectives.loader.ProblemError
 
 
 # ---------------------------------------------------------------- factory_parameters
@@ -134,7 +136,7 @@ def test_factory_parameters_docstring_parsing():
 
 
 def test_factory_parameters_of_problem_subclass():
-    from problems.loader import load_object
+    from optim.objectives.loader import load_object
 
     cls = load_object(f"{EXAMPLES}:AlternatingLamps", DATA)
     assert factory_parameters(cls) == [("n", 10, "Number of lamps in the row."), ("bonus", 0.0, "Added to every score.")]
@@ -205,7 +207,7 @@ def test_plain_vectorised_function():
 
 
 def test_module_reference():
-    problem = make_problem("problems.trap:trap", {"n": 9, "k": 3})
+    problem = make_problem("optim_problems.trap:trap", {"n": 9, "k": 3})
     assert problem.name == "trap-3" and problem.n == 9
 
 
@@ -288,7 +290,7 @@ def test_module_failing_inside_names_exception_and_place(tmp_path, monkeypatch):
 
 
 def test_callable_missing_in_module():
-    message = expect_error("no callable 'nothing' in module 'problems.trap'", "problems.trap:nothing")
+    message = expect_error("no callable 'nothing' in module 'optim_problems.trap'", "optim_problems.trap:nothing")
     assert message.endswith("callables there: ConcatenatedTrap, trap")
 
 

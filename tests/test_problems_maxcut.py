@@ -1,4 +1,4 @@
-"""Tests of problems.maxcut: reader, generator, vectorised cut value, exact references."""
+"""Tests of optim_problems.maxcut: reader, generator, vectorised cut value, exact references."""
 
 from pathlib import Path
 
@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 from networkx.algorithms.approximation.maxcut import one_exchange
 
-from problems._instances import InstanceFormatError
-from problems.maxcut import (
+from optim_problems._instances import InstanceFormatError
+from optim_problems.maxcut import (
     MaxCutProblem,
     brute_force_max_cut,
     max_cut,
@@ -19,7 +19,7 @@ from problems.maxcut import (
 )
 
 DATA = Path(__file__).parent / "data" / "instances"
-EXAMPLES = Path(__file__).parent.parent / "problems" / "instances"
+EXAMPLES = Path(__file__).parent.parent / "optim_problems" / "instances"
 
 
 def _slow_cut(edges, x):

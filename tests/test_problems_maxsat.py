@@ -1,4 +1,4 @@
-"""Tests of problems.maxsat: readers, generator, vectorised objective, RC2 reference."""
+"""Tests of optim_problems.maxsat: readers, generator, vectorised objective, RC2 reference."""
 
 import gzip
 import itertools
@@ -9,8 +9,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from problems._instances import InstanceFormatError, exhaustive_maximum
-from problems.maxsat import (
+from optim_problems._instances import InstanceFormatError, exhaustive_maximum
+from optim_problems.maxsat import (
     AUTO_SOLVE_LIMIT,
     ClauseCountWarning,
     MaxSatFormula,
@@ -25,7 +25,7 @@ from problems.maxsat import (
 )
 
 DATA = Path(__file__).parent / "data" / "instances"
-EXAMPLES = Path(__file__).parent.parent / "problems" / "instances"
+EXAMPLES = Path(__file__).parent.parent / "optim_problems" / "instances"
 
 
 def _slow_score(formula, x):

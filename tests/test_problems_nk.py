@@ -1,12 +1,12 @@
-"""Tests of problems.nk: tables, neighbourhoods, vectorised fitness, DP and enumeration optima."""
+"""Tests of optim_problems.nk: tables, neighbourhoods, vectorised fitness, DP and enumeration optima."""
 
 import itertools
 
 import numpy as np
 import pytest
 
-from problems._instances import binary_assignments, exhaustive_maximum
-from problems.nk import (
+from optim_problems._instances import binary_assignments, exhaustive_maximum
+from optim_problems.nk import (
     NKLandscape,
     adjacent_neighbours,
     adjacent_optimum,

@@ -1,4 +1,4 @@
-"""Tests for problems.rostering (staff rostering with an exact MILP reference)."""
+"""Tests for optim_problems.rostering (staff rostering with an exact MILP reference)."""
 
 import itertools
 import os
@@ -6,7 +6,7 @@ import os
 import numpy as np
 import pytest
 
-from problems.rostering import (
+from optim_problems.rostering import (
     DEFAULT_WEIGHTS,
     PENALTIES,
     RosterData,
@@ -18,7 +18,7 @@ from problems.rostering import (
 )
 
 DATA = os.path.join(os.path.dirname(__file__), "data", "instances")
-BUNDLED = os.path.join(os.path.dirname(__file__), os.pardir, "problems", "instances")
+BUNDLED = os.path.join(os.path.dirname(__file__), os.pardir, "optim_problems", "instances")
 
 
 def _slow_penalty(roster, row):

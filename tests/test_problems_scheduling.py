@@ -1,4 +1,4 @@
-"""Tests for problems.scheduling (machine assignment, P||Cmax)."""
+"""Tests for optim_problems.scheduling (machine assignment, P||Cmax)."""
 
 import itertools
 import math
@@ -7,7 +7,7 @@ import os
 import numpy as np
 import pytest
 
-from problems.scheduling import (
+from optim_problems.scheduling import (
     MachineAssignment,
     lpt_schedule,
     machine_assignment,
@@ -19,7 +19,7 @@ from problems.scheduling import (
 )
 
 DATA = os.path.join(os.path.dirname(__file__), "data", "instances")
-BUNDLED = os.path.join(os.path.dirname(__file__), os.pardir, "problems", "instances")
+BUNDLED = os.path.join(os.path.dirname(__file__), os.pardir, "optim_problems", "instances")
 
 
 def _slow_makespan(times, machine_per_job, machines):

@@ -1,11 +1,11 @@
-"""Tests for problems.service_demo (the invented ticket-booking latency demo)."""
+"""Tests for optim_problems.service_demo (the invented ticket-booking latency demo)."""
 
 import itertools
 
 import numpy as np
 import pytest
 
-from problems.service_demo import PLANTED, TOGGLES, ServiceLatency, service_latency
+from optim_problems.service_demo import PLANTED, TOGGLES, ServiceLatency, service_latency
 
 DOCUMENTED_CONTRAST = {"synergy": -1.0, "conflict": 1.0, "must-match": -2.0}
 

@@ -11,8 +11,8 @@ from scipy import stats
 
 from optim.cli import main
 from optim.errors import RunFolderError
-from optim.plots import best_on_grid, ecdf_points, quartile_band
-from optim.report import (
+from optim.sweeps.plots import best_on_grid, ecdf_points, quartile_band
+from optim.sweeps.report import (
     bootstrap_mean_interval,
     expected_running_time,
     load_sweep,
@@ -20,8 +20,8 @@ from optim.report import (
     vargha_delaney_a,
     write_report,
 )
-from optim.sweep import run_sweep
-from optim.sweep_config import load_sweep_config
+from optim.sweeps.running import run_sweep
+from optim.sweeps.config import load_sweep_config
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 
@@ -176,7 +176,7 @@ def copy_of(folder, tmp_path):
 def test_without_scipy_or_matplotlib_the_report_says_what_was_skipped(sweep_folder, tmp_path, monkeypatch):
     sweep_folder = copy_of(sweep_folder, tmp_path)
     monkeypatch.setitem(sys.modules, "scipy.stats", None)
-    monkeypatch.setattr("optim.report.plots_available", lambda: False)
+    monkeypatch.setattr("optim.sweeps.report.plots_available", lambda: False)
     report = write_report(sweep_folder)
     text = report.path.read_text()
     assert all(c.p_value is None for c in report.comparisons)

@@ -11,7 +11,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from optim.records import RunFolder, read_jsonl
+from optim.runs.folder import RunFolder, read_jsonl
 
 ROOT = Path(__file__).resolve().parents[1]
 DATA = Path(__file__).resolve().parent / "data" / "resume"
@@ -135,7 +135,7 @@ def test_finished_and_foreign_folders_are_refused_with_a_clear_message(tmp_path)
 
 
 def test_checkpoint_from_another_version_is_refused(tmp_path):
-    from optim.checkpoint import load_checkpoint, save_checkpoint
+    from optim.runs.checkpoint import load_checkpoint, save_checkpoint
 
     out = tmp_path / "out"
     process = subprocess.run([sys.executable, str(DATA / "killer.py"), "after-log", "3", "--", "run",

@@ -6,9 +6,9 @@ import pytest
 import optim
 from optim.methods import truncation_select
 from optim.search import Search, SearchSettings, StopRules
-from problems.fourpeaks import four_peaks
-from problems.onemax import onemax
-from problems.trap import trap
+from optim_problems.fourpeaks import four_peaks
+from optim_problems.onemax import onemax
+from optim_problems.trap import trap
 
 
 def _strip_timing(history):

@@ -17,7 +17,7 @@ planted pairs must stand out among the strongest edges of the learned tree.
 import numpy as np
 import pytest
 
-import problems
+from optim import objectives
 from optim.search import Search, SearchSettings, StopRules
 
 SEEDS = (1, 2, 3)
@@ -47,7 +47,7 @@ _BUILT = {}
 def _problem(name, params):
     key = (name, tuple(sorted(params.items())))
     if key not in _BUILT:
-        _BUILT[key] = problems.make_problem(name, params)
+        _BUILT[key] = objectives.make_problem(name, params)
     return _BUILT[key]
 
 
@@ -78,7 +78,7 @@ def test_the_machine_assignment_cases_are_not_solved_by_the_starting_schedule():
 
 def _planted_among_strongest_edges(seed):
     """Run the tree on the noisy service demo to generation 6; return what its tree shows."""
-    problem = problems.make_problem("service-latency", dict(noise=5.0, seed=seed))
+    problem = objectives.make_problem("service-latency", dict(noise=5.0, seed=seed))
     index = {name: i for i, name in enumerate(problem.variable_names)}
     planted = {frozenset((index[a], index[b])) for a, b, _ in problem.planted_pairs}
     search = Search(problem, SearchSettings(method="tree", population=1000),

@@ -13,10 +13,10 @@ import numpy as np
 import pytest
 
 from optim.cli import main
-from optim.config import parse_yaml_text, read_yaml
+from optim.runs.config import parse_yaml_text, read_yaml
 from optim.errors import ConfigError, RunFolderError
-from optim.sweep import SweepStore, run_sweep
-from optim.sweep_config import job_identity, load_sweep_config, parse_sweep_config
+from optim.sweeps.running import SweepStore, run_sweep
+from optim.sweeps.config import job_identity, load_sweep_config, parse_sweep_config
 
 ROOT = Path(__file__).resolve().parents[1]
 

@@ -6,8 +6,8 @@ __all__ = ["register"]
 
 
 def _cmd_bench(args) -> int:
-    from optim.bench import FULL, QUICK, run_bench, write_bench
-    from optim.bench_report import format_text
+    from optim.bench.suite import FULL, QUICK, run_bench, write_bench
+    from optim.bench.report import format_text
 
     report = run_bench(QUICK if args.quick else FULL)
     path = write_bench(report, args.out)

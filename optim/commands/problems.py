@@ -6,15 +6,15 @@ __all__ = ["register"]
 
 
 def _cmd_problems(args) -> int:
-    import problems
+    from optim import objectives
 
-    for name in problems.available():
-        factory = problems.get_factory(name)
+    for name in objectives.available():
+        factory = objectives.get_factory(name)
         doc = (factory.__doc__ or "").strip().splitlines()
         summary = doc[0] if doc else ""
         print(f"{name}: {summary}")
-        for parameter in problems.factory_parameters(factory):
-            default = "(required)" if parameter.default is problems.REQUIRED else f"= {parameter.default!r}"
+        for parameter in objectives.factory_parameters(factory):
+            default = "(required)" if parameter.default is objectives.REQUIRED else f"= {parameter.default!r}"
             description = f"  {parameter.description}" if parameter.description else ""
             print(f"    {parameter.name} {default}{description}")
     print("\nAny 'path/to/file.py:callable' or 'package.module:callable' also works as problem.use.")

@@ -6,7 +6,7 @@ __all__ = ["register"]
 
 
 def _cmd_report(args) -> int:
-    from optim.report import write_report
+    from optim.sweeps.report import write_report
 
     report = write_report(args.folder, baseline=args.baseline, plots=not args.no_plots)
     print(report.table, end="")

@@ -10,7 +10,7 @@ __all__ = ["register"]
 
 
 def _cmd_resume(args) -> int:
-    from optim.runner import resume
+    from optim.runs.runner import resume
 
     progress = Progress(sys.stderr, 0, quiet=args.quiet)
     try:

@@ -11,8 +11,8 @@ __all__ = ["register"]
 
 
 def _cmd_run(args) -> int:
-    from optim.config import load_run_config
-    from optim.runner import build_problem, execute
+    from optim.runs.config import load_run_config
+    from optim.runs.runner import build_problem, execute
 
     overrides = list(args.set or [])
     if args.seed is not None:

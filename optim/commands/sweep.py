@@ -10,8 +10,8 @@ __all__ = ["register"]
 
 
 def _cmd_sweep(args) -> int:
-    from optim.sweep import run_sweep
-    from optim.sweep_config import load_sweep_config
+    from optim.sweeps.running import run_sweep
+    from optim.sweeps.config import load_sweep_config
 
     config = load_sweep_config(args.config)
     outcome = run_sweep(config, out=args.out, jobs=args.jobs, dask=args.dask, progress_stream=sys.stderr,

@@ -1,6 +1,6 @@
 """Objectives for the parallel-evaluation tests (invented for these tests; no reference values).
 
-Loaded as ``objectives.py:NAME`` by ``problems.loader``, so worker processes
+Loaded as ``objectives.py:NAME`` by ``optim.objectives.loader``, so worker processes
 and Dask workers get them by value, as they would a user's file.
 """
 

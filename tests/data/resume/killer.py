@@ -25,8 +25,8 @@ def tick():
     return count["n"] == k
 
 
-import optim.checkpoint as checkpoint  # noqa: E402
-import optim.records as records  # noqa: E402
+import optim.runs.checkpoint as checkpoint  # noqa: E402
+import optim.runs.folder as records  # noqa: E402
 import optim.search as search  # noqa: E402
 
 if mode == "evaluation":

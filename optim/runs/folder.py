@@ -1,0 +1,303 @@
+"""The run folder: resolved config, per-generation log, result, learned tree.
+
+Layout of ``<out>/<name>-s<seed>-<UTC time>/``:
+
+``config.yaml``
+    The resolved config, every default filled in.
+``log.jsonl``
+    One JSON object per generation (JSON Lines).
+``result.json``
+    The final result.
+``tree.graphml``
+    The last dependency tree or forest (tree and forest methods).
+``trees.jsonl``
+    Each generation's tree edges with their mutual information.
+``failures.jsonl``
+    One JSON object per failed evaluation.
+``evaluated.npz``
+    Every evaluated candidate (``candidates``, uint8), its score (``scores``,
+    nan where the evaluation failed) and its generation (``generation``);
+    while the run is going on, ``evaluated.part`` collects the same records
+    (fixed-size binary rows, appended once per generation).
+``run.json``
+    Facts about the run: optim version, the config file it came from, the
+    problem's summary.
+``checkpoint.npz``
+    The state to continue from (see :mod:`optim.runs.checkpoint`).
+
+Whole files are written atomically (a temporary file in the same folder,
+flushed and synced, then renamed over the target); a log line is written with
+one ``write`` call and synced, so a crash never leaves a half-written file.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import json
+import os
+import tempfile
+from pathlib import Path
+from typing import Iterable, Optional
+
+import yaml
+
+from optim.errors import RunFolderError
+
+__all__ = ["RunFolder", "atomic_write", "read_jsonl"]
+
+
+def _fsync_folder(folder: Path) -> None:
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+def atomic_write(path, data: bytes) -> None:
+    """Replace ``path`` with ``data`` so that readers see the old or the new file, never a mix."""
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; give the file the usual permissions
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(data)
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+    _fsync_folder(path.parent)
+
+
+def read_jsonl(path, with_lines: bool = False) -> list:
+    """Records of a JSON Lines file; a torn last line (no newline) is ignored.
+
+    With ``with_lines``, each entry is ``(line number, record)`` so callers can report where a bad record is.
+    """
+    path = Path(path)
+    if not path.exists():
+        return []
+    records = []
+    with path.open("r", encoding="utf-8") as handle:
+        for number, line in enumerate(handle, 1):
+            if not line.endswith("\n"):
+                break
+            if line.strip():
+                try:
+                    record = json.loads(line)
+                except json.JSONDecodeError as exc:
+                    raise RunFolderError(f"{path}:{number}: not valid JSON ({exc.msg})") from None
+                records.append((number, record) if with_lines else record)
+    return records
+
+
+def _json_default(value):
+    import numpy as np
+
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.floating):
+        return float(value)
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    raise TypeError(f"cannot write {type(value).__name__} as JSON")
+
+
+def to_json(value) -> str:
+    return json.dumps(value, default=_json_default, allow_nan=False, separators=(",", ":"))
+
+
+class RunFolder:
+    """One run's folder and the files in it."""
+
+    CONFIG, LOG, RESULT, TREE, TREES, FAILURES, EVALUATED = (
+        "config.yaml", "log.jsonl", "result.json", "tree.graphml", "trees.jsonl", "failures.jsonl",
+        "evaluated.npz")
+    EVALUATED_PART, INFO, CHECKPOINT = "evaluated.part", "run.json", "checkpoint.npz"
+    #: JSON Lines files whose records carry a ``generation`` and are cut back on resume.
+    PER_GENERATION = (LOG, TREES, FAILURES)
+
+    def __init__(self, path):
+        self.path = Path(path)
+
+    @classmethod
+    def create(cls, out, name: str, seed: int, now: Optional[_dt.datetime] = None) -> "RunFolder":
+        """Make ``<out>/<name>-s<seed>-<UTC time>/`` (a suffix ``-2``, ``-3`` … if it exists)."""
+        now = now or _dt.datetime.now(_dt.timezone.utc)
+        stamp = now.strftime("%Y%m%dT%H%M%SZ")
+        out = Path(out)
+        try:
+            out.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise RunFolderError(f"cannot create the output folder {out}: {exc.strerror or exc}") from None
+        if not os.access(out, os.W_OK | os.X_OK):
+            raise RunFolderError(f"the output folder {out} is not writable")
+        base = f"{name}-s{seed}-{stamp}"
+        for attempt in range(1, 1000):
+            path = out / (base if attempt == 1 else f"{base}-{attempt}")
+            try:
+                path.mkdir()
+                return cls(path)
+            except FileExistsError:
+                continue
+            except OSError as exc:
+                raise RunFolderError(f"cannot create the run folder {path}: {exc.strerror or exc}") from None
+        raise RunFolderError(f"too many run folders named {base} in {out}")
+
+    def file(self, name: str) -> Path:
+        return self.path / name
+
+    def write_config(self, config: dict) -> None:
+        atomic_write(self.file(self.CONFIG), yaml.safe_dump(config, sort_keys=False).encode("utf-8"))
+
+    def write_result(self, result: dict) -> None:
+        atomic_write(self.file(self.RESULT), (json.dumps(result, default=_json_default, indent=2) + "\n").encode())
+
+    def append(self, name: str, records: Iterable[dict]) -> None:
+        """Append records to a JSON Lines file, one ``write`` and one sync for the batch."""
+        lines = "".join(to_json(r) + "\n" for r in records)
+        if not lines:
+            return
+        with self.file(name).open("a", encoding="utf-8") as handle:
+            handle.write(lines)
+            handle.flush()
+            os.fsync(handle.fileno())
+
+    def append_log(self, record: dict) -> None:
+        self.append(self.LOG, [record])
+
+    def write_tree(self, graph) -> None:
+        """Write a networkx graph as GraphML, atomically."""
+        import io
+
+        import networkx as nx
+
+        buffer = io.BytesIO()
+        nx.write_graphml(graph, buffer)
+        atomic_write(self.file(self.TREE), buffer.getvalue())
+
+    def write_evaluated(self, candidates, scores, generation) -> None:
+        """Write every evaluated candidate with its score and generation (compressed .npz), atomically."""
+        import io
+
+        import numpy as np
+
+        buffer = io.BytesIO()
+        np.savez_compressed(buffer, candidates=candidates, scores=scores, generation=generation)
+        atomic_write(self.file(self.EVALUATED), buffer.getvalue())
+
+    @staticmethod
+    def _evaluated_dtype(n: int):
+        import numpy as np
+
+        return np.dtype([("candidate", np.uint8, (n,)), ("score", "<f8"), ("generation", "<i4")])
+
+    def append_evaluated(self, candidates, scores, generation: int) -> None:
+        """Append one generation's candidates and scores to ``evaluated.part`` (synced)."""
+        import numpy as np
+
+        rows = np.empty(len(scores), dtype=self._evaluated_dtype(candidates.shape[1]))
+        rows["candidate"], rows["score"], rows["generation"] = candidates, scores, generation
+        with self.file(self.EVALUATED_PART).open("ab") as handle:
+            handle.write(rows.tobytes())
+            handle.flush()
+            os.fsync(handle.fileno())
+
+    def read_evaluated_part(self, n: int):
+        """``(candidates, scores, generation)`` collected so far in ``evaluated.part``."""
+        import numpy as np
+
+        dtype = self._evaluated_dtype(n)
+        path = self.file(self.EVALUATED_PART)
+        raw = path.read_bytes() if path.exists() else b""
+        rows = np.frombuffer(raw[: len(raw) // dtype.itemsize * dtype.itemsize], dtype=dtype)
+        return rows["candidate"].copy(), rows["score"].copy(), rows["generation"].astype(np.int64)
+
+    def finish_evaluated(self, n: int) -> None:
+        """Turn ``evaluated.part`` into ``evaluated.npz`` (then remove the part file)."""
+        self.write_evaluated(*self.read_evaluated_part(n))
+        try:
+            self.file(self.EVALUATED_PART).unlink()
+        except FileNotFoundError:
+            pass
+
+    def cut_back(self, generation: int, evaluated_rows: int, n: int) -> None:
+        """Forget everything recorded for generations >= ``generation`` (before a resume).
+
+        JSON Lines files are rewritten atomically with the earlier records only,
+        and ``evaluated.part`` is truncated to its first ``evaluated_rows`` rows.
+        """
+        for name in self.PER_GENERATION:
+            path = self.file(name)
+            if not path.exists():
+                continue
+            records = read_jsonl(path)
+            kept = [r for r in records if r.get("generation", -1) < generation]
+            if len(kept) != len(records) or not path.read_bytes().endswith(b"\n"):
+                atomic_write(path, "".join(to_json(r) + "\n" for r in kept).encode("utf-8"))
+        part = self.file(self.EVALUATED_PART)
+        size = evaluated_rows * self._evaluated_dtype(n).itemsize
+        if part.exists():
+            if part.stat().st_size < size:
+                raise RunFolderError(f"{part} holds fewer records than the checkpoint expects; the folder is damaged")
+            with part.open("r+b") as handle:
+                handle.truncate(size)
+                handle.flush()
+                os.fsync(handle.fileno())
+        elif evaluated_rows:
+            raise RunFolderError(f"{part} is missing; the folder is damaged")
+
+    def remove_stale_temporaries(self) -> None:
+        """Delete temporary files left by an atomic write that was killed before its rename."""
+        for leftover in self.path.glob(".*.tmp"):
+            try:
+                leftover.unlink()
+            except OSError:
+                pass
+
+    def write_info(self, info: dict) -> None:
+        atomic_write(self.file(self.INFO), (json.dumps(info, default=_json_default, indent=2) + "\n").encode())
+
+    def read_info(self) -> dict:
+        path = self.file(self.INFO)
+        try:
+            return json.loads(path.read_text(encoding="utf-8"))
+        except FileNotFoundError:
+            raise RunFolderError(f"{self.path} is not a run folder (no {self.INFO})") from None
+        except json.JSONDecodeError as exc:
+            raise RunFolderError(f"{path}:{exc.lineno}: not valid JSON ({exc.msg})") from None
+
+    def read_evaluated(self):
+        """``(candidates, scores, generation)`` from ``evaluated.npz``, or ``None`` if absent."""
+        import numpy as np
+
+        path = self.file(self.EVALUATED)
+        if not path.exists():
+            return None
+        with np.load(path, allow_pickle=False) as data:
+            return data["candidates"], data["scores"], data["generation"]
+
+    def read_log(self) -> list:
+        return read_jsonl(self.file(self.LOG))
+
+    def read_result(self) -> Optional[dict]:
+        path = self.file(self.RESULT)
+        if not path.exists():
+            return None
+        return json.loads(path.read_text(encoding="utf-8"))

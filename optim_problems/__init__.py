@@ -1,0 +1,1 @@
+"""Benchmark and scheduling problem families, reached by name through :mod:`optim.objectives.registry`."""
