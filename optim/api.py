@@ -51,12 +51,20 @@ def optimize(
     else:
         if n is None:
             raise ValueError("The 'n' parameter is required when the objective is a plain function.")
-        problem = FunctionProblem(objective, n, cardinality=cardinality, goal=goal or "maximize",
-                                  vectorized=vectorized)
-    settings = SearchSettings(method=method, population=population, select=select, prior=prior,
-                              elitism=elitism, alpha=alpha, jobs=jobs, cache=cache, timeout=timeout, dask=dask)
-    stop = StopRules(evaluations=budget, target=target, patience=patience, collapse=collapse,
-                     max_failures=max_failures)
+        problem = FunctionProblem(objective, n, cardinality=cardinality, goal=goal or "maximize", vectorized=vectorized)
+    settings = SearchSettings(
+        method=method,
+        population=population,
+        select=select,
+        prior=prior,
+        elitism=elitism,
+        alpha=alpha,
+        jobs=jobs,
+        cache=cache,
+        timeout=timeout,
+        dask=dask,
+    )
+    stop = StopRules(evaluations=budget, target=target, patience=patience, collapse=collapse, max_failures=max_failures)
     search = Search(problem, settings, stop, seed=seed)
     with search.evaluator:  # worker processes or a cluster connection live as long as the search
         return search.run(on_generation)

@@ -58,7 +58,7 @@ _BLOCK_CELLS = 1 << 24
 # Pairs per block of the binary path's cell arithmetic (its working set stays in cache).
 _CHUNK_CELLS = 1 << 15
 # Smallest scaled prior for which unweighted binary cells cannot round to zero or below.
-_SAFE_PRIOR = 2.0 ** -20
+_SAFE_PRIOR = 2.0**-20
 
 
 # -- input checks ---------------------------------------------------------------------------
@@ -75,13 +75,11 @@ def _check_samples(X, caller: str) -> np.ndarray:
         )
     if arr.shape[0] == 0:
         raise ValueError(
-            f"The 'X' parameter of {caller} must contain at least one sample (row). "
-            f"Got shape {arr.shape} instead."
+            f"The 'X' parameter of {caller} must contain at least one sample (row). Got shape {arr.shape} instead."
         )
     if arr.shape[1] == 0:
         raise ValueError(
-            f"The 'X' parameter of {caller} must contain at least one variable (column). "
-            f"Got shape {arr.shape} instead."
+            f"The 'X' parameter of {caller} must contain at least one variable (column). Got shape {arr.shape} instead."
         )
     if arr.dtype == np.bool_:
         return arr.view(np.uint8)
@@ -156,8 +154,7 @@ def _check_weights(weights, N: int, caller: str):
     if not np.all(np.isfinite(w)) or np.any(w < 0):
         bad = w[~(np.isfinite(w) & (w >= 0))][0]
         raise ValueError(
-            f"The 'weights' parameter of {caller} must hold finite non-negative numbers. "
-            f"Got {bad} instead."
+            f"The 'weights' parameter of {caller} must hold finite non-negative numbers. Got {bad} instead."
         )
     return w
 
@@ -178,12 +175,7 @@ def _check_prior(prior, caller: str) -> float:
 def _check_base(base, caller: str) -> float:
     if base is None:
         return 1.0
-    if (
-        isinstance(base, (bool, np.bool_))
-        or not isinstance(base, numbers.Real)
-        or not math.isfinite(base)
-        or base <= 1
-    ):
+    if isinstance(base, (bool, np.bool_)) or not isinstance(base, numbers.Real) or not math.isfinite(base) or base <= 1:
         raise ValueError(
             f"The 'base' parameter of {caller} must be None (natural logarithm) or a number greater "
             f"than 1. Got {_shown(base)} instead."
@@ -591,14 +583,9 @@ def pair_table(X, i, j, cardinality=None, weights=None, prior=0.0) -> np.ndarray
     X, card, w, a = _check_common(X, cardinality, weights, prior, caller)
     n = X.shape[1]
     for name, index in (("i", i), ("j", j)):
-        if (
-            isinstance(index, (bool, np.bool_))
-            or not isinstance(index, numbers.Integral)
-            or not 0 <= index < n
-        ):
+        if isinstance(index, (bool, np.bool_)) or not isinstance(index, numbers.Integral) or not 0 <= index < n:
             raise ValueError(
-                f"The '{name}' parameter of {caller} must be a column index in 0..{n - 1}. "
-                f"Got {_shown(index)} instead."
+                f"The '{name}' parameter of {caller} must be a column index in 0..{n - 1}. Got {_shown(index)} instead."
             )
     k_i, k_j = int(card[i]), int(card[j])
     codes = X[:, i].astype(np.int64) * k_j + X[:, j]

@@ -31,9 +31,7 @@ def as_cardinality(cardinality, n: int) -> np.ndarray:
     else:
         card = np.asarray(cardinality, dtype=np.int64).reshape(-1)
         if card.shape[0] != n:
-            raise ValueError(
-                f"cardinality must give one value per variable ({n}); got {card.shape[0]} values"
-            )
+            raise ValueError(f"cardinality must give one value per variable ({n}); got {card.shape[0]} values")
     if n > 0 and (card.min() < 2 or card.max() > 256):
         raise ValueError("every cardinality must be between 2 and 256")
     return card
@@ -101,9 +99,7 @@ class Problem(abc.ABC):
             variable_names = [f"x{i}" for i in range(self.n)]
         variable_names = [str(v) for v in variable_names]
         if len(variable_names) != self.n:
-            raise ValueError(
-                f"variable_names must have {self.n} entries; got {len(variable_names)}"
-            )
+            raise ValueError(f"variable_names must have {self.n} entries; got {len(variable_names)}")
         if len(set(variable_names)) != self.n:
             raise ValueError("variable_names must be distinct")
         self.variable_names = variable_names

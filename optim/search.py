@@ -200,12 +200,18 @@ class Search:
         self.rng = np.random.Generator(np.random.PCG64(method_stream))
         s = self.settings
         self.method = make_method(
-            s.method, problem, self.rng, population=s.population, select=s.select, prior=s.prior,
-            elitism=s.elitism, alpha=s.alpha, lookahead=s.jobs,
+            s.method,
+            problem,
+            self.rng,
+            population=s.population,
+            select=s.select,
+            prior=s.prior,
+            elitism=s.elitism,
+            alpha=s.alpha,
+            lookahead=s.jobs,
         )
         cache = problem.cache_by_default if s.cache is None else s.cache
-        self.evaluator = evaluator or Evaluator(problem, jobs=s.jobs, cache=bool(cache), timeout=s.timeout,
-                                                dask=s.dask)
+        self.evaluator = evaluator or Evaluator(problem, jobs=s.jobs, cache=bool(cache), timeout=s.timeout, dask=s.dask)
         self.keep_evaluated = bool(keep_evaluated)
         self._evaluated_candidates: List[np.ndarray] = []
         self._evaluated_fitness: List[np.ndarray] = []
@@ -337,7 +343,8 @@ class Search:
         fitness = np.concatenate(self._evaluated_fitness)
         scores = np.where(np.isfinite(fitness), self.sign * fitness, np.nan)
         generation = np.concatenate(
-            [np.full(f.shape[0], g, dtype=np.int64) for g, f in enumerate(self._evaluated_fitness)])
+            [np.full(f.shape[0], g, dtype=np.int64) for g, f in enumerate(self._evaluated_fitness)]
+        )
         return np.concatenate(self._evaluated_candidates), scores, generation
 
     def result(self) -> SearchResult:

@@ -19,7 +19,6 @@ from optim_problems._checks import population_of, require_int
 __all__ = ["FourPeaks", "four_peaks"]
 
 
-
 class FourPeaks(Problem):
     """Four Peaks (Baluja & Caruana, 1995); see :func:`four_peaks`."""
 
@@ -28,8 +27,7 @@ class FourPeaks(Problem):
         t = require_int("t", t, 0)
         if 2 * t + 2 > n:
             raise ValueError(
-                f"t must satisfy 0 <= t <= (n - 2) / 2 so that the reward can be reached; "
-                f"got t={t} with n={n}"
+                f"t must satisfy 0 <= t <= (n - 2) / 2 so that the reward can be reached; got t={t} with n={n}"
             )
         super().__init__(
             n,

@@ -27,12 +27,7 @@ class Hiff(Problem):
     """
 
     def __init__(self, n: int = 64):
-        if (
-            isinstance(n, (bool, np.bool_))
-            or not isinstance(n, (int, np.integer))
-            or n < 2
-            or int(n) & (int(n) - 1)
-        ):
+        if isinstance(n, (bool, np.bool_)) or not isinstance(n, (int, np.integer)) or n < 2 or int(n) & (int(n) - 1):
             raise ValueError(f"n must be a power of two >= 2; got {n!r}")
         n = int(n)
         levels = n.bit_length() - 1
@@ -40,8 +35,7 @@ class Hiff(Problem):
             n,
             goal="maximize",
             optimum=n * (levels + 1),
-            optimum_source="n (log2 n + 1), reached by all zeros and all ones "
-            "(Watson, Hornby & Pollack 1998)",
+            optimum_source="n (log2 n + 1), reached by all zeros and all ones (Watson, Hornby & Pollack 1998)",
             name="hiff",
         )
         self.levels = levels

@@ -18,7 +18,6 @@ from optim_problems._checks import population_of, require_int
 __all__ = ["IsingRing", "ising_ring"]
 
 
-
 class IsingRing(Problem):
     """Equal neighbouring pairs on a cycle (Ising, 1925); see :func:`ising_ring`."""
 

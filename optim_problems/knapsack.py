@@ -230,9 +230,7 @@ def _count(token, path, line: int, what: str) -> int:
     except ValueError:
         value = -1
     if value < 0:
-        raise InstanceFormatError(
-            path, line, f"expected a non-negative integer {what}, got {text!r}"
-        )
+        raise InstanceFormatError(path, line, f"expected a non-negative integer {what}, got {text!r}")
     return value
 
 
@@ -253,11 +251,7 @@ def read_items_csv(path) -> Tuple[List[str], np.ndarray, np.ndarray]:
         name, a weight or value that is not a non-negative integer, or no items.
     """
     path = os.fspath(path)
-    rows = [
-        (no, text)
-        for no, text in read_instance_lines(path)
-        if text.strip() and not text.lstrip().startswith("#")
-    ]
+    rows = [(no, text) for no, text in read_instance_lines(path) if text.strip() and not text.lstrip().startswith("#")]
     if not rows:
         raise InstanceFormatError(path, None, "expected a header 'name,weight,value' and item rows")
     names, weights, values = [], [], []
@@ -271,9 +265,7 @@ def read_items_csv(path) -> Tuple[List[str], np.ndarray, np.ndarray]:
                 )
             continue
         if len(fields) != 3:
-            raise InstanceFormatError(
-                path, number, f"expected 3 fields 'name,weight,value', got {len(fields)}"
-            )
+            raise InstanceFormatError(path, number, f"expected 3 fields 'name,weight,value', got {len(fields)}")
         name = fields[0]
         if not name:
             raise InstanceFormatError(path, number, "expected a non-empty item name")
@@ -313,9 +305,7 @@ def read_items_yaml(path) -> Tuple[List[str], np.ndarray, np.ndarray, int]:
     except yaml.YAMLError as error:
         mark = getattr(error, "problem_mark", None)
         line = None if mark is None else mark.line + 1
-        raise InstanceFormatError(
-            path, line, f"expected valid YAML ({getattr(error, 'problem', error)})"
-        ) from None
+        raise InstanceFormatError(path, line, f"expected valid YAML ({getattr(error, 'problem', error)})") from None
     if not isinstance(root, yaml.MappingNode):
         line = None if root is None else root.start_mark.line + 1
         raise InstanceFormatError(path, line, "expected a mapping with keys 'capacity' and 'items'")
@@ -335,17 +325,13 @@ def read_items_yaml(path) -> Tuple[List[str], np.ndarray, np.ndarray, int]:
     capacity = _scalar_count(capacity_node, path, "capacity")
     items_node = top["items"][1]
     if not isinstance(items_node, yaml.SequenceNode) or not items_node.value:
-        raise InstanceFormatError(
-            path, items_node.start_mark.line + 1, "expected 'items' to be a non-empty list"
-        )
+        raise InstanceFormatError(path, items_node.start_mark.line + 1, "expected 'items' to be a non-empty list")
     names, weights, values = [], [], []
     seen = {}
     for item in items_node.value:
         line = item.start_mark.line + 1
         if not isinstance(item, yaml.MappingNode):
-            raise InstanceFormatError(
-                path, line, "expected an item mapping with keys name, weight, value"
-            )
+            raise InstanceFormatError(path, line, "expected an item mapping with keys name, weight, value")
         fields = {key.value: node for key, node in item.value}
         if set(fields) != {"name", "weight", "value"}:
             raise InstanceFormatError(
@@ -355,9 +341,7 @@ def read_items_yaml(path) -> Tuple[List[str], np.ndarray, np.ndarray, int]:
             )
         name_node = fields["name"]
         if not isinstance(name_node, yaml.ScalarNode) or not str(name_node.value).strip():
-            raise InstanceFormatError(
-                path, name_node.start_mark.line + 1, "expected a non-empty item name"
-            )
+            raise InstanceFormatError(path, name_node.start_mark.line + 1, "expected a non-empty item name")
         name = str(name_node.value).strip()
         if name in seen:
             raise InstanceFormatError(
@@ -379,9 +363,7 @@ def _scalar_count(node, path, what: str) -> int:
     return _count(node.value, path, line, what)
 
 
-def dp_knapsack(
-    weights: Sequence[int], values: Sequence[int], capacity: int
-) -> Tuple[int, np.ndarray]:
+def dp_knapsack(weights: Sequence[int], values: Sequence[int], capacity: int) -> Tuple[int, np.ndarray]:
     """Exact 0/1 knapsack by dynamic programming over the capacity.
 
     ``best[c]`` is the largest value of items ``0 … j`` of total weight at most
@@ -475,12 +457,8 @@ def knapsack(
         if capacity is None:
             capacity = int(np.floor(capacity_ratio * weights.sum()))
         name = f"knapsack:{kind}-n{items}-seed{seed}"
-    problem = KnapsackProblem(
-        weights, values, capacity, constraint=constraint, item_names=names, name=name
-    )
+    problem = KnapsackProblem(weights, values, capacity, constraint=constraint, item_names=names, name=name)
     if resolve_solve_option(solve, problem.n * (problem.capacity + 1) <= AUTO_SOLVE_CELLS):
         problem.optimum = float(dp_knapsack(weights, values, capacity)[0])
-        problem.optimum_source = (
-            "dynamic programming over the capacity (Kellerer, Pferschy & Pisinger 2004)"
-        )
+        problem.optimum_source = "dynamic programming over the capacity (Kellerer, Pferschy & Pisinger 2004)"
     return problem

@@ -118,9 +118,7 @@ class MaxCutProblem(Problem):
         graph = nx.Graph()
         graph.add_nodes_from(self.variable_names)
         names = self.variable_names
-        graph.add_weighted_edges_from(
-            (names[a], names[b], float(c)) for a, b, c in zip(self.u, self.v, self.w)
-        )
+        graph.add_weighted_edges_from((names[a], names[b], float(c)) for a, b, c in zip(self.u, self.v, self.w))
         return graph
 
     def describe(self) -> dict:
@@ -174,9 +172,7 @@ def read_edge_list(path) -> Tuple[List[str], np.ndarray, np.ndarray, np.ndarray]
             continue
         fields = [f for f in _SEPARATORS.split(content) if f]
         if len(fields) not in (2, 3):
-            raise InstanceFormatError(
-                path, number, f"expected 'u v' or 'u v weight', got {len(fields)} fields"
-            )
+            raise InstanceFormatError(path, number, f"expected 'u v' or 'u v weight', got {len(fields)} fields")
         weight = 1.0
         if len(fields) == 3:
             try:
@@ -184,9 +180,7 @@ def read_edge_list(path) -> Tuple[List[str], np.ndarray, np.ndarray, np.ndarray]
             except ValueError:
                 weight = float("nan")
             if not np.isfinite(weight):
-                raise InstanceFormatError(
-                    path, number, f"expected a finite number as edge weight, got {fields[2]!r}"
-                )
+                raise InstanceFormatError(path, number, f"expected a finite number as edge weight, got {fields[2]!r}")
         ends.append((fields[0], fields[1]))
         weights.append(weight)
     if not ends:
@@ -238,15 +232,11 @@ def brute_force_max_cut(problem: MaxCutProblem) -> Tuple[float, np.ndarray]:
     Returns the best cut value and one assignment reaching it (node 0 on side 0).
     """
     if problem.n > _ENUMERATION_CAP:
-        raise ValueError(
-            f"enumerating 2**(n-1) cuts is limited to n <= {_ENUMERATION_CAP}; got n={problem.n}"
-        )
+        raise ValueError(f"enumerating 2**(n-1) cuts is limited to n <= {_ENUMERATION_CAP}; got n={problem.n}")
     return exhaustive_maximum(problem.evaluate, problem.n, fix_first_zero=True)
 
 
-def milp_max_cut(
-    problem: MaxCutProblem, time_limit: Optional[float] = None
-) -> Tuple[float, np.ndarray]:
+def milp_max_cut(problem: MaxCutProblem, time_limit: Optional[float] = None) -> Tuple[float, np.ndarray]:
     """Exact max cut with ``scipy.optimize.milp`` (HiGHS).
 
     Formulation (common practice, no source): binary ``x_i`` (side of node i,

@@ -103,9 +103,7 @@ class MaxSatFormula:
         for clause in self.clauses:
             for lit in clause:
                 if lit == 0 or abs(lit) > self.n_variables:
-                    raise ValueError(
-                        f"literal {lit} is out of range for {self.n_variables} variables"
-                    )
+                    raise ValueError(f"literal {lit} is out of range for {self.n_variables} variables")
 
     @property
     def n_clauses(self) -> int:
@@ -118,10 +116,7 @@ class MaxSatFormula:
         return int(self.weights[~self.hard].sum())
 
     def __repr__(self) -> str:
-        return (
-            f"<MaxSatFormula {self.n_variables} variables, {self.n_clauses} clauses "
-            f"({int(self.hard.sum())} hard)>"
-        )
+        return f"<MaxSatFormula {self.n_variables} variables, {self.n_clauses} clauses ({int(self.hard.sum())} hard)>"
 
 
 def _parse_int(token: str, path, line: int, what: str) -> int:
@@ -132,9 +127,7 @@ def _parse_int(token: str, path, line: int, what: str) -> int:
 
 
 def _parse_header(tokens: List[str], path, line: int):
-    usage = (
-        "expected a header 'p cnf <variables> <clauses>' or 'p wcnf <variables> <clauses> [<top>]'"
-    )
+    usage = "expected a header 'p cnf <variables> <clauses>' or 'p wcnf <variables> <clauses> [<top>]'"
     kind = tokens[1].lower() if len(tokens) > 1 else ""
     if tokens[0] != "p" or kind not in ("cnf", "wcnf"):
         raise InstanceFormatError(path, line, usage)
@@ -144,9 +137,7 @@ def _parse_header(tokens: List[str], path, line: int):
     for token in tokens[2:]:
         value = _parse_int(token, path, line, "a non-negative integer in the header")
         if value < 0:
-            raise InstanceFormatError(
-                path, line, f"expected a non-negative integer in the header, got {token!r}"
-            )
+            raise InstanceFormatError(path, line, f"expected a non-negative integer in the header, got {token!r}")
         numbers.append(value)
     top = numbers[2] if len(numbers) == 3 else None
     return kind, numbers[0], numbers[1], top
@@ -178,9 +169,7 @@ class _Collector:
     def weight(self, token: str, line: int) -> int:
         value = _parse_int(token, self.path, line, "a positive integer clause weight")
         if value < 1:
-            raise InstanceFormatError(
-                self.path, line, f"expected a positive integer clause weight, got {token!r}"
-            )
+            raise InstanceFormatError(self.path, line, f"expected a positive integer clause weight, got {token!r}")
         return value
 
     def add(self, literals: List[int], weight: int, hard: bool) -> None:
@@ -227,9 +216,7 @@ def parse_formula(lines, path="<string>", strict_count: bool = True) -> MaxSatFo
         tokens = stripped.split()
         if stripped[0] == "p":
             if header is not None or collector is not None:
-                raise InstanceFormatError(
-                    path, number, "expected a single 'p' header line before the first clause"
-                )
+                raise InstanceFormatError(path, number, "expected a single 'p' header line before the first clause")
             header = _parse_header(tokens, path, number)
             header_line = number
             collector = _Collector(path, header[1])
@@ -266,9 +253,7 @@ def parse_formula(lines, path="<string>", strict_count: bool = True) -> MaxSatFo
             "the clause starting on this line is not terminated: expected a final 0",
         )
     if collector is None:
-        raise InstanceFormatError(
-            path, None, "expected a 'p cnf' or 'p wcnf' header or clauses; the file has none"
-        )
+        raise InstanceFormatError(path, None, "expected a 'p cnf' or 'p wcnf' header or clauses; the file has none")
     if header is not None:
         declared = header[2]
         found = len(collector.clauses)
@@ -276,9 +261,7 @@ def parse_formula(lines, path="<string>", strict_count: bool = True) -> MaxSatFo
             message = f"the header declares {declared} clauses but the file holds {found}"
             if strict_count:
                 raise InstanceFormatError(path, header_line, message)
-            warnings.warn(
-                f"{path}, line {header_line}: {message}", ClauseCountWarning, stacklevel=2
-            )
+            warnings.warn(f"{path}, line {header_line}: {message}", ClauseCountWarning, stacklevel=2)
         n_variables = header[1]
     else:
         n_variables = collector.n_seen
@@ -294,13 +277,9 @@ def _parse_headerless_line(tokens: List[str], number: int, collector: _Collector
         weight, hard = collector.weight(tokens[0], number), False
     literals = [collector.literal(token, number) for token in tokens[1:]]
     if not literals or literals[-1] != 0:
-        raise InstanceFormatError(
-            collector.path, number, "expected the clause to end with 0 on the same line"
-        )
+        raise InstanceFormatError(collector.path, number, "expected the clause to end with 0 on the same line")
     if 0 in literals[:-1]:
-        raise InstanceFormatError(
-            collector.path, number, "expected one clause per line (a 0 appears before the end)"
-        )
+        raise InstanceFormatError(collector.path, number, "expected one clause per line (a 0 appears before the end)")
     collector.add(literals[:-1], weight, hard)
 
 
@@ -478,8 +457,7 @@ def _import_rc2():
         from pysat.formula import WCNF
     except ImportError as error:
         raise ImportError(
-            "the MAX-SAT reference optimum needs python-sat: pip install python-sat "
-            "(import name pysat)"
+            "the MAX-SAT reference optimum needs python-sat: pip install python-sat (import name pysat)"
         ) from error
     return RC2, WCNF
 
@@ -574,9 +552,7 @@ def max_sat(
         source = "given by the user"
     else:
         small = (
-            formula.n_variables <= AUTO_SOLVE_LIMIT[0]
-            and formula.n_clauses <= AUTO_SOLVE_LIMIT[1]
-            and _rc2_available()
+            formula.n_variables <= AUTO_SOLVE_LIMIT[0] and formula.n_clauses <= AUTO_SOLVE_LIMIT[1] and _rc2_available()
         )
         if resolve_solve_option(solve, small):
             optimum, _ = rc2_optimum(formula)

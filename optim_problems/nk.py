@@ -87,16 +87,12 @@ class NKLandscape(Problem):
             raise ValueError(f"neighbours must have shape (n, K) with n = {n} rows")
         k = neighbours.shape[1]
         if tables.shape[1] != 1 << (k + 1):
-            raise ValueError(
-                f"tables must have 2**(K+1) = {1 << (k + 1)} columns; got {tables.shape[1]}"
-            )
+            raise ValueError(f"tables must have 2**(K+1) = {1 << (k + 1)} columns; got {tables.shape[1]}")
         if neighbours.size and (neighbours.min() < 0 or neighbours.max() >= n):
             raise ValueError(f"neighbours must lie in 0..{n - 1}")
         if np.any(neighbours == np.arange(n)[:, None]):
             raise ValueError("a variable cannot be its own neighbour")
-        super().__init__(
-            n, goal="maximize", optimum=optimum, optimum_source=optimum_source, name=name
-        )
+        super().__init__(n, goal="maximize", optimum=optimum, optimum_source=optimum_source, name=name)
         self.k = k
         self.neighbours = neighbours
         self.tables = tables
@@ -218,9 +214,7 @@ def brute_force_optimum(problem: NKLandscape) -> Tuple[float, np.ndarray]:
     return exhaustive_maximum(problem.evaluate, problem.n)
 
 
-def nk_landscape(
-    n: int = 20, k: int = 3, neighbourhood: str = "adjacent", seed: int = 0, solve="auto"
-) -> NKLandscape:
+def nk_landscape(n: int = 20, k: int = 3, neighbourhood: str = "adjacent", seed: int = 0, solve="auto") -> NKLandscape:
     """A random NK landscape (Kauffman 1993).
 
     Parameters

@@ -15,7 +15,6 @@ from optim_problems._checks import population_of, require_int
 __all__ = ["OneMax", "onemax"]
 
 
-
 class OneMax(Problem):
     """The number of ones in a bit string; see :func:`onemax`."""
 

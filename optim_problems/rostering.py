@@ -153,9 +153,7 @@ class RosterData:
 def _int_array(values, shape, what) -> np.ndarray:
     array = np.asarray(values)
     if array.shape != shape or not np.issubdtype(array.dtype, np.integer) or (array.size and array.min() < 0):
-        raise ValueError(
-            f"{what} must be non-negative integers of shape {shape}; got {array.shape} {array.dtype}"
-        )
+        raise ValueError(f"{what} must be non-negative integers of shape {shape}; got {array.shape} {array.dtype}")
     return array.astype(np.int64)
 
 
@@ -190,9 +188,7 @@ def _name_list(value, path, line, what) -> List[str]:
     for index, item in enumerate(value):
         item_line = _item_line(value, index, line)
         if item is None or isinstance(item, (list, dict)) or not str(item).strip():
-            raise InstanceFormatError(
-                path, item_line, f"'{what}' entries must be non-empty names; got {item!r}"
-            )
+            raise InstanceFormatError(path, item_line, f"'{what}' entries must be non-empty names; got {item!r}")
         name = str(item).strip()
         if name in names:
             raise InstanceFormatError(path, item_line, f"duplicate name {name!r} in '{what}'")
@@ -204,9 +200,7 @@ def _check_keys(mapping: _LineDict, allowed, path, where):
     for key in mapping:
         if key not in allowed:
             expected = ", ".join(f"'{k}'" for k in allowed)
-            raise InstanceFormatError(
-                path, mapping.line_of(key), f"unknown key {key!r} {where}; expected {expected}"
-            )
+            raise InstanceFormatError(path, mapping.line_of(key), f"unknown key {key!r} {where}; expected {expected}")
 
 
 def _slot_mask(entries, path, line, what, days, shifts) -> np.ndarray:
@@ -256,9 +250,7 @@ def read_roster(path) -> RosterData:
     if extension.lower() not in (".yaml", ".yml"):
         raise ValueError(f"{path}: unknown roster format {extension!r}; expected .yaml or .yml")
     data = _read_yaml(path)
-    _check_keys(
-        data, ("days", "shifts", "min_rest", "max_shifts", "demand", "people"), path, "at the top level"
-    )
+    _check_keys(data, ("days", "shifts", "min_rest", "max_shifts", "demand", "people"), path, "at the top level")
     for key in ("days", "shifts", "max_shifts", "demand", "people"):
         if key not in data:
             raise InstanceFormatError(path, data.line, f"missing key '{key}'")
@@ -300,8 +292,7 @@ def read_roster(path) -> RosterData:
                     f"demand of {shift!r} must list {len(days)} numbers (one per day); got {len(value)}",
                 )
             demand[:, s] = [
-                _count(v, path, _item_line(value, d, line), f"demand of {shift!r}")
-                for d, v in enumerate(value)
+                _count(v, path, _item_line(value, d, line), f"demand of {shift!r}") for d, v in enumerate(value)
             ]
         else:
             demand[:, s] = _count(value, path, line, f"demand of {shift!r}")
@@ -333,9 +324,7 @@ def read_roster(path) -> RosterData:
             else default_max
         )
         unavailable.append(
-            _slot_mask(
-                person.get("unavailable"), path, person.line_of("unavailable"), "unavailable", days, shifts
-            )
+            _slot_mask(person.get("unavailable"), path, person.line_of("unavailable"), "unavailable", days, shifts)
         )
         avoid.append(_slot_mask(person.get("avoid"), path, person.line_of("avoid"), "avoid", days, shifts))
     return RosterData(
@@ -421,8 +410,7 @@ class StaffRoster(Problem):
             value = float(value)
             if not np.isfinite(value) or value < 0:
                 raise ValueError(
-                    f"weight {_WEIGHT_PARAMETERS[key]} ({key}) must be a non-negative number; "
-                    f"got {value!r}"
+                    f"weight {_WEIGHT_PARAMETERS[key]} ({key}) must be a non-negative number; got {value!r}"
                 )
             merged[key] = value
         self.data = data
@@ -560,9 +548,7 @@ def solve_exact(roster: StaffRoster, time_limit: Optional[float] = None) -> Tupl
         triples = np.array(pairs)
         count = len(pairs)
         rows = np.tile(np.arange(count), 3)
-        cols = np.concatenate(
-            [x_index[triples[:, 0], triples[:, 1]], x_index[triples[:, 0], triples[:, 2]], y_index]
-        )
+        cols = np.concatenate([x_index[triples[:, 0], triples[:, 1]], x_index[triples[:, 0], triples[:, 2]], y_index])
         vals = np.concatenate([np.ones(count), np.ones(count), -np.ones(count)])
         rest = sparse.csr_array((vals, (rows, cols)), shape=(count, columns))
         constraints.append(LinearConstraint(rest, -np.inf, 1.0))
@@ -659,9 +645,7 @@ def staff_roster(
             )
         label = f"staff-roster:{os.path.basename(os.fspath(path)).split('.')[0]}"
     else:
-        data = random_roster(
-            people, days, shifts_per_day, seed, 2 if min_rest is None else min_rest, max_shifts
-        )
+        data = random_roster(people, days, shifts_per_day, seed, 2 if min_rest is None else min_rest, max_shifts)
         label = f"staff-roster:random-{int(people)}x{int(days)}x{int(shifts_per_day)}-seed{seed}"
     weights = {
         "under": w_under,

@@ -119,9 +119,7 @@ def _read_yaml(path):
         for key_node, value_node in node.value:
             key = loader.construct_object(key_node, deep=True)
             if not isinstance(key, (str, int, float, bool)) and key is not None:
-                raise InstanceFormatError(
-                    path, key_node.start_mark.line + 1, f"expected a plain key; got {key!r}"
-                )
+                raise InstanceFormatError(path, key_node.start_mark.line + 1, f"expected a plain key; got {key!r}")
             if key in result:
                 raise InstanceFormatError(path, key_node.start_mark.line + 1, f"duplicate key {key!r}")
             result[key] = loader.construct_object(value_node, deep=True)
@@ -178,9 +176,7 @@ def _read_jobs_yaml(path) -> Tuple[List[str], np.ndarray, Optional[int]]:
         raise InstanceFormatError(path, data.line, "missing key 'jobs' (a list of {name, time} entries)")
     jobs = data["jobs"]
     if not isinstance(jobs, list) or not jobs:
-        raise InstanceFormatError(
-            path, data.line_of("jobs"), "'jobs' must be a non-empty list of {name, time} entries"
-        )
+        raise InstanceFormatError(path, data.line_of("jobs"), "'jobs' must be a non-empty list of {name, time} entries")
     names, times = [], []
     for position, entry in enumerate(jobs):
         line = jobs.line_at(position)
@@ -227,9 +223,7 @@ def _read_jobs_csv(path) -> Tuple[List[str], np.ndarray, Optional[int]]:
         names.append(_job_name(cells[0], path, line, names))
         times.append(_positive_int(cells[1], path, line, f"time of job {names[-1]!r}"))
     if header is None:
-        raise InstanceFormatError(
-            path, None, "empty file; expected the header 'name,time' and one job per line"
-        )
+        raise InstanceFormatError(path, None, "empty file; expected the header 'name,time' and one job per line")
     if not names:
         raise InstanceFormatError(path, None, "no jobs after the header 'name,time'")
     return names, np.asarray(times, dtype=np.int64), None
@@ -518,9 +512,7 @@ class MachineAssignment(Problem):
             machines=self.machines,
             encoding=self.encoding,
             lower_bound=makespan_lower_bound(self.times, self.machines),
-            lpt_makespan=schedule_makespan(
-                self.times, lpt_schedule(self.times, self.machines), self.machines
-            ),
+            lpt_makespan=schedule_makespan(self.times, lpt_schedule(self.times, self.machines), self.machines),
         )
         return summary
 

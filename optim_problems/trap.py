@@ -17,7 +17,6 @@ from optim_problems._checks import population_of, require_int
 __all__ = ["ConcatenatedTrap", "trap"]
 
 
-
 class ConcatenatedTrap(Problem):
     """Concatenated trap of order ``k`` (Deb & Goldberg, 1993); see :func:`trap`.
 

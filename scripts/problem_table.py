@@ -76,9 +76,11 @@ def measure(row: Row, seeds: Sequence[int], budget: int, jobs: int = 1) -> dict:
     problem = build_problem(config)
     if problem.optimum is None:
         raise SystemExit(f"{row.label}: the instance has no reference optimum")
-    tasks = [(method, population, seed) for method, population in (("tree", config.search.population),
-                                                                   ("hillclimb", 100))
-             for seed in seeds]
+    tasks = [
+        (method, population, seed)
+        for method, population in (("tree", config.search.population), ("hillclimb", 100))
+        for seed in seeds
+    ]
     started = time.perf_counter()
     if jobs > 1:
         from joblib import Parallel, delayed
@@ -109,17 +111,22 @@ def main(argv=None) -> int:
     parser.add_argument("--jobs", type=int, default=1, help="runs carried out in parallel")
     args = parser.parse_args(argv)
     seeds = list(range(1, args.seeds + 1))
-    print(f"Evaluations to the reference optimum, {args.seeds} seeds, budget {args.budget:,} per run "
-          f"(median; successes in brackets).\n")
+    print(
+        f"Evaluations to the reference optimum, {args.seeds} seeds, budget {args.budget:,} per run "
+        f"(median; successes in brackets).\n"
+    )
     print("| family | instance | variables | optimum (source) | tree (population) | hillclimb |")
     print("| --- | --- | --- | --- | --- | --- |")
     for row in ROWS:
         found = measure(row, seeds, args.budget, args.jobs)
         tree_ok, tree_median = found["tree"]
         climb_ok, climb_median = found["hillclimb"]
-        print(f"| {found['label']} | {found['instance']} | {found['size']} | {found['optimum']} "
-              f"({found['source']}) | {tree_median} ({tree_ok}/{args.seeds}; pop {found['tree_population']}) | "
-              f"{climb_median} ({climb_ok}/{args.seeds}) |", flush=True)
+        print(
+            f"| {found['label']} | {found['instance']} | {found['size']} | {found['optimum']} "
+            f"({found['source']}) | {tree_median} ({tree_ok}/{args.seeds}; pop {found['tree_population']}) | "
+            f"{climb_median} ({climb_ok}/{args.seeds}) |",
+            flush=True,
+        )
     return 0
 
 

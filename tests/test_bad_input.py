@@ -51,22 +51,33 @@ CATALOGUE = [
     ("alpha one", GOOD.replace("method: tree", "method: tree\n  alpha: 1"), 7, "a number in (0, 1)"),
     ("jobs zero", GOOD.replace("method: tree", "method: tree\n  jobs: 0"), 7, "a whole number >= 1"),
     ("unknown method", GOOD.replace("method: tree", "method: genetic"), 6, "one of tree, forest, univariate"),
-    ("budget below population", GOOD.replace("evaluations: 1000", "evaluations: 10"), 9,
-     "smaller than one population"),
-    ("patience zero", GOOD.replace("evaluations: 1000", "evaluations: 1000\n  patience: 0"), 10,
-     "a whole number >= 1, or null"),
+    ("budget below population", GOOD.replace("evaluations: 1000", "evaluations: 10"), 9, "smaller than one population"),
+    (
+        "patience zero",
+        GOOD.replace("evaluations: 1000", "evaluations: 1000\n  patience: 0"),
+        10,
+        "a whole number >= 1, or null",
+    ),
     ("bad target", GOOD.replace("evaluations: 1000", "evaluations: 1000\n  target: best"), 10, "'optimum'"),
-    ("max failures fraction", GOOD.replace("evaluations: 1000", "evaluations: 1000\n  max_failures: 2.5"), 10,
-     "a whole number of failures"),
+    (
+        "max failures fraction",
+        GOOD.replace("evaluations: 1000", "evaluations: 1000\n  max_failures: 2.5"),
+        10,
+        "a whole number of failures",
+    ),
     ("negative seed", GOOD.replace("seed: 1", "seed: -4"), 10, "a whole number >= 0"),
     ("seed as text", GOOD.replace("seed: 1", "seed: abc"), 10, "found 'abc'"),
     ("name with slash", GOOD.replace("name: ok", "name: a/b"), 1, "no slashes"),
     ("unknown problem", GOOD.replace("use: onemax", "use: onemaks"), 3, "did you mean 'onemax'"),
     ("unknown problem parameter", GOOD.replace("n: 20", "size: 20"), 4, "has no parameter 'size'"),
     ("bad problem value", GOOD.replace("n: 20", "n: -3"), 4, "'problem.n': problem 'onemax': n must be"),
-    ("bad command option", "problem:\n  use: command\n  command: [echo, '{flags}']\n  variables:\n"
-     "    - {flag: -a}\n    - {flg: -b}\n  score: {last_number: true}\n  goal: minimize\n", 6,
-     "'problem.variables.1': problem 'command': variables[1]: unknown key 'flg'"),
+    (
+        "bad command option",
+        "problem:\n  use: command\n  command: [echo, '{flags}']\n  variables:\n"
+        "    - {flag: -a}\n    - {flg: -b}\n  score: {last_number: true}\n  goal: minimize\n",
+        6,
+        "'problem.variables.1': problem 'command': variables[1]: unknown key 'flg'",
+    ),
     ("problem e-notation", GOOD.replace("n: 20", "n: 2e1"), 4, "e-notation"),
     ("objective file missing", GOOD.replace("use: onemax", "use: nowhere.py:score"), 3, "nowhere.py"),
     ("callable missing", GOOD.replace("use: onemax", "use: objective.py:absent"), 3, "absent"),
@@ -120,12 +131,39 @@ def test_config_given_as_a_folder_or_unreadable(tmp_path, capsys):
 
 
 # -- property-based: the loader accepts or raises ConfigError, never anything else ------------------------------
-yaml_scalars = st.one_of(st.none(), st.booleans(), st.integers(-10**6, 10**6),
-                         st.floats(allow_nan=True, allow_infinity=True), st.text(max_size=12))
-yaml_values = st.recursive(yaml_scalars, lambda inner: st.one_of(
-    st.lists(inner, max_size=4), st.dictionaries(st.text(max_size=10), inner, max_size=4)), max_leaves=12)
-keys = st.sampled_from(["name", "problem", "search", "stop", "seed", "out", "use", "n", "method", "population",
-                        "select", "prior", "evaluations", "target", "patience", "collapse", "x"])
+yaml_scalars = st.one_of(
+    st.none(),
+    st.booleans(),
+    st.integers(-(10**6), 10**6),
+    st.floats(allow_nan=True, allow_infinity=True),
+    st.text(max_size=12),
+)
+yaml_values = st.recursive(
+    yaml_scalars,
+    lambda inner: st.one_of(st.lists(inner, max_size=4), st.dictionaries(st.text(max_size=10), inner, max_size=4)),
+    max_leaves=12,
+)
+keys = st.sampled_from(
+    [
+        "name",
+        "problem",
+        "search",
+        "stop",
+        "seed",
+        "out",
+        "use",
+        "n",
+        "method",
+        "population",
+        "select",
+        "prior",
+        "evaluations",
+        "target",
+        "patience",
+        "collapse",
+        "x",
+    ]
+)
 
 
 def _loads(text):

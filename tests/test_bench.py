@@ -20,15 +20,31 @@ from optim.bench.timing import time_ratios
 from optim.models.tree import DependencyTree
 
 TINY = dataclasses.replace(
-    QUICK, mode="tiny", fit_sizes=(20, 40), repeats=2, timing_seconds=0.0, generation_n=30, generation_population=60,
-    generation_count=1, memory_n=20, memory_population=40, memory_generations=1,
-    problems=(problem_spec("trap", "trap", seeded=True, n=12, k=3, shuffle=True),
-              problem_spec("hiff", "hiff", n=8),
-              problem_spec("ising-ring", "ising-ring", n=8),
-              problem_spec("four-peaks", "four-peaks", n=10, t=1),
-              problem_spec("onemax", "onemax", n=12)),
-    seeds=2, budget=1500, ladder_populations=(20, 40), scaling_sizes=(9, 18), scaling_multiples=(4, 8),
-    scaling_budget=2000, workers=1,
+    QUICK,
+    mode="tiny",
+    fit_sizes=(20, 40),
+    repeats=2,
+    timing_seconds=0.0,
+    generation_n=30,
+    generation_population=60,
+    generation_count=1,
+    memory_n=20,
+    memory_population=40,
+    memory_generations=1,
+    problems=(
+        problem_spec("trap", "trap", seeded=True, n=12, k=3, shuffle=True),
+        problem_spec("hiff", "hiff", n=8),
+        problem_spec("ising-ring", "ising-ring", n=8),
+        problem_spec("four-peaks", "four-peaks", n=10, t=1),
+        problem_spec("onemax", "onemax", n=12),
+    ),
+    seeds=2,
+    budget=1500,
+    ladder_populations=(20, 40),
+    scaling_sizes=(9, 18),
+    scaling_multiples=(4, 8),
+    scaling_budget=2000,
+    workers=1,
 )
 
 
@@ -39,8 +55,22 @@ def tiny_report():
 
 def test_tiny_run_has_every_section_well_formed(tiny_report):
     report = tiny_report
-    for key in ("version", "mode", "created", "settings", "machine", "fit", "sampling", "generation", "memory",
-                "efficiency", "population", "scaling", "targets", "seconds"):
+    for key in (
+        "version",
+        "mode",
+        "created",
+        "settings",
+        "machine",
+        "fit",
+        "sampling",
+        "generation",
+        "memory",
+        "efficiency",
+        "population",
+        "scaling",
+        "targets",
+        "seconds",
+    ):
         assert key in report
     assert report["mode"] == "tiny" and report["settings"]["seeds"] == 2
     assert isinstance(report["machine"]["blas"], list)
@@ -55,8 +85,10 @@ def test_tiny_run_has_every_section_well_formed(tiny_report):
         assert 1 <= row["tree_depth"] < row["n"]
     generation = report["generation"]
     assert set(generation["shares"]) == {"fit", "sample", "evaluate", "bookkeeping"}
-    assert sum(generation["shares"].values()) == pytest.approx(1.0, abs=1e-6) or \
-        generation["seconds"]["bookkeeping"] == 0.0
+    assert (
+        sum(generation["shares"].values()) == pytest.approx(1.0, abs=1e-6)
+        or generation["seconds"]["bookkeeping"] == 0.0
+    )
     memory = report["memory"]
     assert "error" not in memory, memory.get("error")
     assert memory["peak_mb"] >= memory["baseline_mb"] > 0 and "child process" in memory["method"]
@@ -66,7 +98,8 @@ def test_efficiency_population_and_scaling_tables_cover_every_setting(tiny_repor
     report = tiny_report
     efficiency = report["efficiency"]
     assert {(r["problem"], r["method"]) for r in efficiency} == {
-        (spec.key, method) for spec in TINY.problems for method in TINY.methods}
+        (spec.key, method) for spec in TINY.problems for method in TINY.methods
+    }
     for row in efficiency:
         assert row["seeds"] == 2 and 0 <= row["successes"] <= 2 and len(row["evaluations_to_target"]) == 2
         hits = [e for e in row["evaluations_to_target"] if e is not None]
@@ -92,8 +125,16 @@ def test_write_bench_gives_json_and_markdown_that_match(tiny_report, tmp_path):
     assert loaded["targets"] == json.loads(json.dumps(tiny_report["targets"]))
     markdown = (tmp_path / "out" / "bench.md").read_text()
     text = format_text(tiny_report)
-    for title in ("Model fit", "Sampling", "One generation", "Peak memory", "Median evaluations",
-                  "Fixed populations", "Scaling", "Targets"):
+    for title in (
+        "Model fit",
+        "Sampling",
+        "One generation",
+        "Peak memory",
+        "Median evaluations",
+        "Fixed populations",
+        "Scaling",
+        "Targets",
+    ):
         assert title in markdown and title in text
     assert markdown.count("| problem |") == 2  # efficiency and population tables
 
@@ -122,7 +163,7 @@ def test_command_line_writes_the_files_and_prints_the_tables(monkeypatch, tmp_pa
 # -- the pieces, against outside references -----------------------------------------------------------------
 def test_fit_exponent_recovers_a_power_law_and_matches_scipy_linregress():
     sizes = [30, 60, 120, 240]
-    assert fit_exponent(sizes, [7.0 * n ** 1.5 for n in sizes]) == pytest.approx(1.5, abs=1e-12)
+    assert fit_exponent(sizes, [7.0 * n**1.5 for n in sizes]) == pytest.approx(1.5, abs=1e-12)
     noisy = [1542.0, 4736.0, 15002.0, 44466.0]
     reference = stats.linregress(np.log(sizes), np.log(noisy)).slope  # scipy's least-squares slope
     assert fit_exponent(sizes, noisy) == pytest.approx(reference, rel=1e-12)
@@ -144,6 +185,7 @@ def test_time_ratios_report_minimum_quotients_for_every_candidate():
         def op():
             calls[name] += 1
             return sum(range(200))
+
         return op
 
     result = time_ratios(counted("reference"), {"a": counted("a"), "b": counted("b")}, repeats=4)
@@ -157,31 +199,63 @@ def test_time_ratios_report_minimum_quotients_for_every_candidate():
 
 def _report_for_targets(fit_ratio, sample_ratio, tree_median, tree_successes, exponent, auto_ratio):
     def runs(method, successes, median):
-        return {"problem": "trap", "label": "trap", "method": method, "population": 1000, "budget": 200000,
-                "successes": successes, "median_evaluations": median, "seeds": 10}
+        return {
+            "problem": "trap",
+            "label": "trap",
+            "method": method,
+            "population": 1000,
+            "budget": 200000,
+            "successes": successes,
+            "median_evaluations": median,
+            "seeds": 10,
+        }
 
     return {
         "settings": {"seeds": 10, "reliable": 0.9},
-        "fit": [{"n": 100, "fit_ratio": 9.0, "information_tree_ratio": 9.0},
-                {"n": 500, "fit_ratio": fit_ratio, "information_tree_ratio": 1.5}],
+        "fit": [
+            {"n": 100, "fit_ratio": 9.0, "information_tree_ratio": 9.0},
+            {"n": 500, "fit_ratio": fit_ratio, "information_tree_ratio": 1.5},
+        ],
         "sampling": [{"n": 100, "ratio": sample_ratio}],
-        "efficiency": [runs("tree", tree_successes, tree_median), runs("hillclimb", 0, None),
-                       runs("univariate", 3, 38000.0)],
+        "efficiency": [
+            runs("tree", tree_successes, tree_median),
+            runs("hillclimb", 0, None),
+            runs("univariate", 3, 38000.0),
+        ],
         "scaling": {"sizes": [{"n": 30}, {"n": 60}], "exponent_best_fixed": exponent, "exponent_auto": None},
-        "population": [{"label": "trap", "auto_to_best_ratio": auto_ratio, "auto_successes": 10,
-                        "auto_median": 1.0, "best_fixed_population": 500, "best_fixed_median": 1.0}],
+        "population": [
+            {
+                "label": "trap",
+                "auto_to_best_ratio": auto_ratio,
+                "auto_successes": 10,
+                "auto_median": 1.0,
+                "best_fixed_population": 500,
+                "best_fixed_median": 1.0,
+            }
+        ],
     }
 
 
 def _met(targets):
-    return {t["name"].split(" <=")[0].split(" in >=")[0].split(" does not")[0].split(" within")[0]: t["met"]
-            for t in targets}
+    return {
+        t["name"].split(" <=")[0].split(" in >=")[0].split(" does not")[0].split(" within")[0]: t["met"]
+        for t in targets
+    }
 
 
 def test_targets_are_met_exactly_at_their_limits_and_not_beyond():
-    at_limit = _met(check_targets(_report_for_targets(TARGETS["fit_ratio"], TARGETS["sample_ratio"],
-                                                      TARGETS["tree_median"], 9, TARGETS["scaling_exponent"],
-                                                      TARGETS["auto_to_best"])))
+    at_limit = _met(
+        check_targets(
+            _report_for_targets(
+                TARGETS["fit_ratio"],
+                TARGETS["sample_ratio"],
+                TARGETS["tree_median"],
+                9,
+                TARGETS["scaling_exponent"],
+                TARGETS["auto_to_best"],
+            )
+        )
+    )
     # the size below 500 (ratio 9) is not part of the fit target
     assert at_limit == {
         "DependencyTree.fit (with conditional tables)": True,

@@ -58,8 +58,19 @@ def test_run_writes_a_complete_run_folder(tmp_path, capsys):
 
 def test_seed_and_set_overrides(tmp_path, capsys):
     out = tmp_path / "out"
-    args = ["run", str(small_config(tmp_path, method="hillclimb")), "--out", str(out), "--quiet",
-            "--seed", "8", "--set", "stop.evaluations=2000", "--set", "stop.target=null"]
+    args = [
+        "run",
+        str(small_config(tmp_path, method="hillclimb")),
+        "--out",
+        str(out),
+        "--quiet",
+        "--seed",
+        "8",
+        "--set",
+        "stop.evaluations=2000",
+        "--set",
+        "stop.target=null",
+    ]
     assert main(args) == 0
     folder = only_run_folder(out)
     assert folder.name.startswith("small-s8-")
@@ -68,12 +79,15 @@ def test_seed_and_set_overrides(tmp_path, capsys):
     assert not (folder / "tree.graphml").exists()  # the hill climber learns no tree
 
 
-@pytest.mark.parametrize("args, fragment", [
-    (["run", "missing.yaml"], "missing.yaml: no such file"),
-    (["run", "{cfg}", "--set", "search.population=0"], "command line (--set): 'search.population'"),
-    (["run", "{cfg}", "--set", "problem.n=25"], "n must be a positive multiple of k"),
-    (["run", "{cfg}", "--set", "problem.use=nowhere.py:f"], "nowhere.py"),
-])
+@pytest.mark.parametrize(
+    "args, fragment",
+    [
+        (["run", "missing.yaml"], "missing.yaml: no such file"),
+        (["run", "{cfg}", "--set", "search.population=0"], "command line (--set): 'search.population'"),
+        (["run", "{cfg}", "--set", "problem.n=25"], "n must be a positive multiple of k"),
+        (["run", "{cfg}", "--set", "problem.use=nowhere.py:f"], "nowhere.py"),
+    ],
+)
 def test_bad_input_gives_one_line_and_status_2(tmp_path, capsys, args, fragment):
     cfg = small_config(tmp_path)
     out = tmp_path / "out"

@@ -16,10 +16,15 @@ def write(tmp_path, text, name="run.yaml"):
 
 
 def test_minimal_config_gets_documented_defaults(tmp_path):
-    config = load_run_config(write(tmp_path, """
+    config = load_run_config(
+        write(
+            tmp_path,
+            """
         problem:
           use: onemax
-    """))
+    """,
+        )
+    )
     assert config.name == "run"
     assert config.search == SearchSettings()
     assert config.stop == StopRules()
@@ -28,7 +33,9 @@ def test_minimal_config_gets_documented_defaults(tmp_path):
 
 
 def test_overrides_and_values(tmp_path):
-    path = write(tmp_path, """
+    path = write(
+        tmp_path,
+        """
         name: demo
         problem:
           use: trap
@@ -41,7 +48,8 @@ def test_overrides_and_values(tmp_path):
           target: null
           patience: 5
         seed: 4
-    """)
+    """,
+    )
     config = load_run_config(path, ["search.population=80", "stop.target=12.5", "seed=9"])
     assert config.search.method == "hillclimb"
     assert config.search.population == 80
@@ -59,8 +67,12 @@ BAD = [
     ("problem:\n  use: onemax\nsearch:\n  method: annealing\n", 4, "search.method", "one of tree, forest"),
     ("problem:\n  use: onemax\nstop:\n  evaluations: 1e5\n", 4, "stop.evaluations", "e-notation"),
     ("problem:\n  use: onemax\nsearch:\n  elitism: maybe\n", 4, "search.elitism", "true or false"),
-    ("problem:\n  use: onemax\nsearch:\n  population: 500\nstop:\n  evaluations: 100\n", 6, "stop.evaluations",
-     "smaller than one population"),
+    (
+        "problem:\n  use: onemax\nsearch:\n  population: 500\nstop:\n  evaluations: 100\n",
+        6,
+        "stop.evaluations",
+        "smaller than one population",
+    ),
     ("problem:\n  use: onemx\n", 2, "problem.use", "did you mean 'onemax'"),
     ("problem:\n  use: onemax\n  size: 10\n", 3, "problem.size", "has no parameter 'size'"),
     ("search:\n  method: tree\n", 1, "", "no 'problem' section"),

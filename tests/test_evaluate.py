@@ -20,8 +20,14 @@ from optim import objectives
 from optim.errors import OptimError
 from optim.evaluation.evaluator import FAILURE_KINDS, EvaluationFailure, Evaluator, candidate_text, score_candidates
 from optim.problem import FunctionProblem, Problem
-from optim.evaluation.backends import (ProcessBackend, ThreadBackend, WorkerError, backend_kind, make_backend,
-                           ship_problem)
+from optim.evaluation.backends import (
+    ProcessBackend,
+    ThreadBackend,
+    WorkerError,
+    backend_kind,
+    make_backend,
+    ship_problem,
+)
 
 ROOT = Path(__file__).resolve().parents[1]
 OBJECTIVES = Path(__file__).resolve().parent / "data" / "objectives_parallel" / "objectives.py"
@@ -61,20 +67,37 @@ def test_every_fault_kind_of_a_per_candidate_objective():
     assert "None" in messages[4] and "'fast'" in messages[5]
 
 
-@pytest.mark.parametrize("value, expected", [
-    (3, 3.0), (np.float32(1.5), 1.5), (np.int64(-2), -2.0), (np.array(4.0), 4.0), (np.array([[2.5]]), 2.5),
-    ([7], 7.0), (True, 1.0),
-])
+@pytest.mark.parametrize(
+    "value, expected",
+    [
+        (3, 3.0),
+        (np.float32(1.5), 1.5),
+        (np.int64(-2), -2.0),
+        (np.array(4.0), 4.0),
+        (np.array([[2.5]]), 2.5),
+        ([7], 7.0),
+        (True, 1.0),
+    ],
+)
 def test_numbers_in_many_forms_are_scores(value, expected):
     problem = FunctionProblem(lambda x: value, 3)
     [(score, kind, message)] = score_candidates(problem, np.zeros((1, 3), np.uint8))
     assert (score, kind, message) == (expected, None, "")
 
 
-@pytest.mark.parametrize("value, kind", [
-    ({"score": 1}, "type"), ([1, 2], "shape"), (["a"], "type"), (b"12", "type"), ("12", "type"), (object(), "type"),
-    (float("inf"), "inf"), (np.float64("nan"), "nan"),
-])
+@pytest.mark.parametrize(
+    "value, kind",
+    [
+        ({"score": 1}, "type"),
+        ([1, 2], "shape"),
+        (["a"], "type"),
+        (b"12", "type"),
+        ("12", "type"),
+        (object(), "type"),
+        (float("inf"), "inf"),
+        (np.float64("nan"), "nan"),
+    ],
+)
 def test_things_that_are_not_one_number(value, kind):
     problem = FunctionProblem(lambda x: value, 3)
     [(score, got, message)] = score_candidates(problem, np.zeros((1, 3), np.uint8))
@@ -237,13 +260,16 @@ def test_a_user_file_objective_is_shipped_by_value():
     problem = load("score", n=8)
     payload = ship_problem(problem)
     X = np.random.default_rng(4).integers(0, 2, size=(12, 8), dtype=np.uint8)
-    script = ("import pickle, sys, numpy as np; from optim.evaluation.evaluator import score_candidates; "
-              "data = sys.stdin.buffer.read(); problem = pickle.loads(data[:-96]); "
-              "X = np.frombuffer(data[-96:], dtype=np.uint8).reshape(12, 8); "
-              "print(repr([o[0] if o[1] is None else o[1] for o in score_candidates(problem, X)]))")
+    script = (
+        "import pickle, sys, numpy as np; from optim.evaluation.evaluator import score_candidates; "
+        "data = sys.stdin.buffer.read(); problem = pickle.loads(data[:-96]); "
+        "X = np.frombuffer(data[-96:], dtype=np.uint8).reshape(12, 8); "
+        "print(repr([o[0] if o[1] is None else o[1] for o in score_candidates(problem, X)]))"
+    )
     # a fresh interpreter, where the loader's module name means nothing: the code must travel in the payload
-    out = subprocess.run([sys.executable, "-c", script], input=payload + X.tobytes(), capture_output=True,
-                         cwd=ROOT, check=True).stdout.decode()
+    out = subprocess.run(
+        [sys.executable, "-c", script], input=payload + X.tobytes(), capture_output=True, cwd=ROOT, check=True
+    ).stdout.decode()
     expected = [o[0] if o[1] is None else o[1] for o in score_candidates(problem, X)]
     assert eval(out) == expected
 

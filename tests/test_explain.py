@@ -48,8 +48,7 @@ def _run(tmp_path_factory, name, *overrides):
 @pytest.fixture(scope="module")
 def demo_run(tmp_path_factory):
     """The bundled demo config at a small budget, fixed seeds."""
-    return _run(tmp_path_factory, "demo", "search.population=500", "stop.evaluations=15000", "problem.seed=3",
-                "seed=3")
+    return _run(tmp_path_factory, "demo", "search.population=500", "stop.evaluations=15000", "problem.seed=3", "seed=3")
 
 
 @pytest.fixture(scope="module")
@@ -59,8 +58,9 @@ def demo(demo_run):
 
 @pytest.fixture(scope="module")
 def hill_run(tmp_path_factory):
-    return _run(tmp_path_factory, "hill", "search.method=hillclimb", "search.population=200",
-                "stop.evaluations=3000", "seed=4")
+    return _run(
+        tmp_path_factory, "hill", "search.method=hillclimb", "search.population=200", "stop.evaluations=3000", "seed=4"
+    )
 
 
 # -- statistics against outside references --------------------------------------------------------
@@ -74,8 +74,12 @@ def test_wilson_interval_matches_scipy_and_a_published_table():
         assert lo == pytest.approx(ci.low, abs=1e-12) and hi == pytest.approx(ci.high, abs=1e-12)
     # R. G. Newcombe, "Two-sided confidence intervals for the single proportion: comparison of seven
     # methods", Statistics in Medicine 17, 1998, Table II, score method (from memory)
-    published = {(81, 263): (0.2553, 0.3662), (15, 148): (0.0624, 0.1605), (0, 20): (0.0, 0.1611),
-                 (1, 29): (0.0061, 0.1718)}
+    published = {
+        (81, 263): (0.2553, 0.3662),
+        (15, 148): (0.0624, 0.1605),
+        (0, 20): (0.0, 0.1611),
+        (1, 29): (0.0061, 0.1718),
+    }
     for (kk, nn), (lo, hi) in published.items():
         got = wilson_interval(kk, nn)
         assert float(got[0]) == pytest.approx(lo, abs=5e-5) and float(got[1]) == pytest.approx(hi, abs=5e-5)
@@ -83,8 +87,10 @@ def test_wilson_interval_matches_scipy_and_a_published_table():
         wilson_interval(3, 2)
 
 
-@pytest.mark.parametrize("table", [[[30, 10], [12, 28]], [[5, 45], [40, 10]], [[20, 21], [19, 20]],
-                                   [[3, 0], [1, 9]], [[12, 7, 30], [25, 14, 2]]])
+@pytest.mark.parametrize(
+    "table",
+    [[[30, 10], [12, 28]], [[5, 45], [40, 10]], [[20, 21], [19, 20]], [[3, 0], [1, 9]], [[12, 7, 30], [25, 14, 2]]],
+)
 def test_g_test_p_value_matches_scipy_chi2_contingency(table):
     table = np.array(table, dtype=float)
     joint = table / table.sum()
@@ -166,8 +172,9 @@ def test_adjusted_effects_equal_a_dummy_variable_regression():
     rng = np.random.default_rng(12)
     strata = rng.integers(0, 5, 800)
     base = rng.random(800) < 0.5
-    X = np.stack([base, base ^ (rng.random(800) < 0.2), rng.random(800) < 0.3 + 0.1 * strata,
-                  rng.random(800) < 0.5], axis=1)  # correlated columns, frequencies varying by stratum
+    X = np.stack(
+        [base, base ^ (rng.random(800) < 0.2), rng.random(800) < 0.3 + 0.1 * strata, rng.random(800) < 0.5], axis=1
+    )  # correlated columns, frequencies varying by stratum
     truth = np.array([4.0, -2.0, 1.0, 0.0])
     scores = X @ truth + 7.0 * strata + rng.normal(0, 0.5, 800)
     effect, se = adjusted_effects(X, scores, strata)
@@ -185,8 +192,15 @@ def test_adjusted_effects_equal_a_dummy_variable_regression():
 
 def test_uniform_random_candidates_show_only_the_planted_pairs(tmp_path_factory):
     # random search is a designed experiment: settings vary independently, so estimates are unconfounded
-    folder = _run(tmp_path_factory, "random", "search.method=random", "search.population=1000",
-                  "stop.evaluations=6000", "problem.seed=9", "seed=9")
+    folder = _run(
+        tmp_path_factory,
+        "random",
+        "search.method=random",
+        "search.population=1000",
+        "stop.evaluations=6000",
+        "problem.seed=9",
+        "seed=9",
+    )
     explanation = explain_run(folder)
     planted = {frozenset((p.a, p.b)) for p in PLANTED}
     found = {frozenset(p.names) for p in explanation.clear_pairs}
@@ -224,17 +238,20 @@ def test_best_candidates_favoured_values_and_fitted_sizes():
     assert fitted_sizes([3, 1], 0.1, True) == {1: 2}
 
 
-@pytest.mark.parametrize("cells, kind, flag", [
-    ((+3.0, +2.0, -35.0), "synergy", True),            # neither alone helps, together they do
-    ((-6.0, -4.0, -30.0), "synergy", False),           # both help alone, together more than the sum
-    ((+60.0, +58.0, -6.0), "must-match", False),       # mismatches are slow, either match is fine
-    ((-15.0, -18.0, +12.0), "conflict", True),         # either one helps, both is worse than neither
-    ((-18.0, -3.0, -10.0), "conflict", False),         # best with the first alone
-    ((-20.0, -15.0, -25.0), "overlap", False),         # both help, together less than the sum
-    ((+5.0, +6.0, +30.0), "conflict", False),          # each hurts alone, together much worse
-    ((-1.5, -0.5, +30.0), "conflict", False),          # neither alone matters, together they hurt
-    ((-0.1, 0.1, 0.05), "unclear", False),
-])
+@pytest.mark.parametrize(
+    "cells, kind, flag",
+    [
+        ((+3.0, +2.0, -35.0), "synergy", True),  # neither alone helps, together they do
+        ((-6.0, -4.0, -30.0), "synergy", False),  # both help alone, together more than the sum
+        ((+60.0, +58.0, -6.0), "must-match", False),  # mismatches are slow, either match is fine
+        ((-15.0, -18.0, +12.0), "conflict", True),  # either one helps, both is worse than neither
+        ((-18.0, -3.0, -10.0), "conflict", False),  # best with the first alone
+        ((-20.0, -15.0, -25.0), "overlap", False),  # both help, together less than the sum
+        ((+5.0, +6.0, +30.0), "conflict", False),  # each hurts alone, together much worse
+        ((-1.5, -0.5, +30.0), "conflict", False),  # neither alone matters, together they hurt
+        ((-0.1, 0.1, 0.05), "unclear", False),
+    ],
+)
 def test_pair_shapes_for_both_goals(cells, kind, flag):
     only_a, only_b, both = cells
     contrast = both - only_a - only_b
@@ -275,8 +292,9 @@ def test_important_toggles_lead_and_inert_toggles_trail_the_main_effects(demo):
     order = [v.index for v in demo.variables]
     assert all(cost[i] >= 10 for i in order[:8])
     involved = {name for p in PLANTED for name in (p.a, p.b)}
-    inert = [i for i, name in enumerate(problem.variable_names)
-             if problem.main_effects[name] == 0 and name not in involved]
+    inert = [
+        i for i, name in enumerate(problem.variable_names) if problem.main_effects[name] == 0 and name not in involved
+    ]
     assert len(inert) == 12 and min(order.index(i) for i in inert) >= 24
     assert sum(demo.variables[order.index(i)].helps is None for i in inert) >= 7
     for v in demo.variables[:8]:  # the best candidates agree on the optimal setting of each leading toggle
@@ -289,8 +307,9 @@ def test_recorded_fit_sizes_match_the_replayed_selection(demo_run, demo):
     recorded = {r["generation"]: r["fitted_on"] for r in records if "fitted_on" in r}
     assert recorded and recorded == {g: replayed[g] for g in recorded}
     link = demo.links[0]  # reference for the χ² tail: scipy.stats.chi2.sf
-    assert link.p_value == pytest.approx(scipy.stats.chi2.sf(2 * link.fitted_on * link.peak_information, link.df),
-                                         rel=1e-6, abs=1e-300)
+    assert link.p_value == pytest.approx(
+        scipy.stats.chi2.sf(2 * link.fitted_on * link.peak_information, link.df), rel=1e-6, abs=1e-300
+    )
 
 
 def test_explain_command_writes_reports_and_pictures(demo_run, capsys):
@@ -302,8 +321,16 @@ def test_explain_command_writes_reports_and_pictures(demo_run, capsys):
         data = (demo_run / name).read_bytes()
         assert data.startswith(PNG_SIGNATURE) and len(data) > 5000
     text = (demo_run / "explain.md").read_text()
-    for fragment in ("not a designed experiment", "Wilson", "mutual information", "help only together",
-                     "conflict", "must match", "## How the model sharpened", "tree.png"):
+    for fragment in (
+        "not a designed experiment",
+        "Wilson",
+        "mutual information",
+        "help only together",
+        "conflict",
+        "must match",
+        "## How the model sharpened",
+        "tree.png",
+    ):
         assert fragment in text
     document = json.loads((demo_run / "explain.json").read_text())
     assert document["run"]["goal"] == "minimize" and len(document["variables"]) == 40
@@ -361,12 +388,15 @@ def test_an_unfinished_run_is_explained_with_a_note(demo_run, tmp_path):
     assert not explanation.data.finished and any("not finished" in n for n in explanation.notes)
 
 
-@pytest.mark.parametrize("damage, fragment", [
-    ("missing", "no such run folder"),
-    ("config.yaml", "not a run folder"),
-    ("evaluated.npz", "incomplete run folder"),
-    ("trees.jsonl", "trees.jsonl:2: expected each edge"),
-])
+@pytest.mark.parametrize(
+    "damage, fragment",
+    [
+        ("missing", "no such run folder"),
+        ("config.yaml", "not a run folder"),
+        ("evaluated.npz", "incomplete run folder"),
+        ("trees.jsonl", "trees.jsonl:2: expected each edge"),
+    ],
+)
 def test_missing_or_incomplete_folders_give_one_line_and_status_2(demo_run, tmp_path, capsys, damage, fragment):
     folder = tmp_path / "damaged"
     if damage != "missing":

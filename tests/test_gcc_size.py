@@ -35,6 +35,7 @@ ALLOC, WRITE, EXEC = 0x2, 0x1, 0x4
 
 # ---------------------------------------------------------------- hand-built ELF files
 
+
 def build_elf(bits, order, sections, extended=False):
     """Bytes of a relocatable ELF file with the given sections (name, type, flags, size).
 
@@ -72,8 +73,23 @@ def build_elf(bits, order, sections, extended=False):
         body += struct.pack(endian + entry_format, *row)
     ident = b"\x7fELF" + bytes([1 if bits == 32 else 2, 1 if order == "little" else 2, 1]) + bytes(9)
     machine = 62 if bits == 64 else 8  # x86-64, MIPS
-    header = struct.pack(endian + header_format, ident, 1, machine, 1, 0, 0, shoff, 0, header_size, 0, 0,
-                         entry_size, 0 if extended else count, 0xFFFF if extended else strndx)
+    header = struct.pack(
+        endian + header_format,
+        ident,
+        1,
+        machine,
+        1,
+        0,
+        0,
+        shoff,
+        0,
+        header_size,
+        0,
+        0,
+        entry_size,
+        0 if extended else count,
+        0xFFFF if extended else strndx,
+    )
     body[:header_size] = header
     return bytes(body)
 
@@ -83,15 +99,16 @@ SAMPLE = [
     (".data", SHT_PROGBITS, ALLOC | WRITE, 40),
     (".text.startup", SHT_PROGBITS, ALLOC | EXEC, 77),
     (".bss", SHT_NOBITS, ALLOC | WRITE, 64),
-    (".odd.nobits", SHT_NOBITS, ALLOC | EXEC, 500),     # executable but not stored in the file: not code
-    (".debug.exec", SHT_PROGBITS, EXEC, 90),             # executable but not allocated: not code
+    (".odd.nobits", SHT_NOBITS, ALLOC | EXEC, 500),  # executable but not stored in the file: not code
+    (".debug.exec", SHT_PROGBITS, EXEC, 90),  # executable but not allocated: not code
     (".init", SHT_PROGBITS, ALLOC | EXEC, 9),
 ]
 SAMPLE_CODE = 300 + 77 + 9  # by the definition: allocated, executable, stored in the file
 
 
-@pytest.mark.parametrize("bits, order, extended", [(64, "little", False), (32, "big", False),
-                                                   (32, "little", True), (64, "big", True)])
+@pytest.mark.parametrize(
+    "bits, order, extended", [(64, "little", False), (32, "big", False), (32, "little", True), (64, "big", True)]
+)
 def test_the_reader_finds_every_section_of_a_hand_built_file(tmp_path, bits, order, extended):
     path = tmp_path / "sample.o"
     path.write_bytes(build_elf(bits, order, SAMPLE, extended=extended))
@@ -178,6 +195,7 @@ def test_objdump_code_sections_add_up_to_the_code_size(compiled):
 
 # ---------------------------------------------------------------- the example program
 
+
 def _reference_counts(text, min_letters=1):
     """Words as wordfreq.c defines them, counted with Python's re and collections.Counter."""
     words = [w.lower() for w in re.findall(r"[A-Za-z]+(?:'[A-Za-z]+)*", text)]
@@ -187,11 +205,28 @@ def _reference_counts(text, min_letters=1):
 @needs_gcc
 def test_the_example_program_counts_words_like_a_python_reference(tmp_path):
     program = tmp_path / "wordfreq"
-    subprocess.run(["gcc", "-std=c99", "-Wall", "-Werror", "-Os", str(SOURCE), "-o", str(program)],
-                   check=True, capture_output=True)
+    subprocess.run(
+        ["gcc", "-std=c99", "-Wall", "-Werror", "-Os", str(SOURCE), "-o", str(program)], check=True, capture_output=True
+    )
     rng = np.random.default_rng(5)
-    vocabulary = ["Tide", "harbour", "can't", "KELP", "gull", "o'er", "net", "a", "lighthouse", "ferry's",
-                  "Rope", "salt", "mast", "buoy", "wave", "i"]
+    vocabulary = [
+        "Tide",
+        "harbour",
+        "can't",
+        "KELP",
+        "gull",
+        "o'er",
+        "net",
+        "a",
+        "lighthouse",
+        "ferry's",
+        "Rope",
+        "salt",
+        "mast",
+        "buoy",
+        "wave",
+        "i",
+    ]
     separators = [" ", "  ", ", ", ". ", "\n", "--", " 42 ", "'", "; "]
     pieces = []
     for _ in range(3000):
@@ -200,8 +235,12 @@ def test_the_example_program_counts_words_like_a_python_reference(tmp_path):
     text = "".join(pieces)
     (tmp_path / "tale.txt").write_text(text)
     for min_letters in (1, 4):
-        out = subprocess.run([str(program), "-n", "8", "-m", str(min_letters), str(tmp_path / "tale.txt")],
-                             capture_output=True, text=True, check=True).stdout.splitlines()
+        out = subprocess.run(
+            [str(program), "-n", "8", "-m", str(min_letters), str(tmp_path / "tale.txt")],
+            capture_output=True,
+            text=True,
+            check=True,
+        ).stdout.splitlines()
         counts = _reference_counts(text, min_letters)
         ranked = sorted(counts.items(), key=lambda item: (-item[1], item[0].encode()))
         assert out[0] == f"words {sum(counts.values())}" and out[1] == f"distinct {len(counts)}"

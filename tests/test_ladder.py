@@ -28,6 +28,7 @@ def _constant(n=40):
 def _counting_fitness(problem):
     def fitness(X):
         return problem.evaluate(X)
+
     return fitness
 
 
@@ -41,7 +42,7 @@ def test_a_flat_objective_stalls_every_run_after_the_stall_limit_and_the_populat
     # "stalled" after exactly 1 + stall generations (the slow rule is switched off with rate 0).
     problem = _constant()
     ladder = PopulationLadder(problem, np.random.default_rng(0), smallest=8, stall=3, rate=0.0)
-    evaluations = [ladder.step(_counting_fitness(problem), 10 ** 9).evaluations for _ in range(4 * 4)]
+    evaluations = [ladder.step(_counting_fitness(problem), 10**9).evaluations for _ in range(4 * 4)]
     assert ladder.populations == [8, 16, 32, 64]
     expected = []
     for population in (8, 16, 32, 64):
@@ -59,6 +60,7 @@ def _drifting(problem, direction):
         start = calls["count"]
         calls["count"] += X.shape[0]
         return direction * np.arange(start, start + X.shape[0], dtype=np.float64)
+
     return fitness
 
 
@@ -67,12 +69,12 @@ def test_a_run_whose_new_candidates_never_survive_ends_as_slow_after_the_window(
     # With the stall rule out of reach the run ends as "slow" once the window of rates is full:
     # generation 1 (uniform, no rate), generations 2 and 3 (two rates), then the next run starts.
     problem = onemax(12)
-    ladder = PopulationLadder(problem, np.random.default_rng(1), smallest=8, stall=10 ** 6, window=2, rate=0.3)
+    ladder = PopulationLadder(problem, np.random.default_rng(1), smallest=8, stall=10**6, window=2, rate=0.3)
     fitness = _drifting(problem, -1.0)
     for _ in range(3):
-        ladder.step(fitness, 10 ** 9)
+        ladder.step(fitness, 10**9)
     assert ladder.rates == [0.0, 0.0] and ladder.ending() == "slow"
-    ladder.step(fitness, 10 ** 9)
+    ladder.step(fitness, 10**9)
     assert ladder.populations == [8, 16]
     assert ladder.rungs[0] == {"population": 8, "evaluations": _flat_rung_evaluations(8, 2), "ending": "slow"}
 
@@ -84,17 +86,17 @@ def test_a_run_whose_new_candidates_always_win_goes_on():
     ladder = PopulationLadder(problem, np.random.default_rng(2), smallest=8)
     fitness = _drifting(problem, 1.0)
     for _ in range(40):
-        ladder.step(fitness, 10 ** 9)
+        ladder.step(fitness, 10**9)
     assert ladder.populations == [8]
     assert ladder.rates == [1.0] * ladder.window and ladder.ending() is None
 
 
 def test_the_replacement_rate_is_the_share_of_new_candidates_the_next_selection_keeps():
     problem = trap(n=30, k=3, shuffle=True, seed=4)
-    ladder = PopulationLadder(problem, np.random.default_rng(5), smallest=64, stall=10 ** 6, rate=0.0)
-    ladder.step(_counting_fitness(problem), 10 ** 9)
+    ladder = PopulationLadder(problem, np.random.default_rng(5), smallest=64, stall=10**6, rate=0.0)
+    ladder.step(_counting_fitness(problem), 10**9)
     for _ in range(12):
-        outcome = ladder.step(_counting_fitness(problem), 10 ** 9)
+        outcome = ladder.step(_counting_fitness(problem), 10**9)
         run = ladder.run
         carried = run.pool.shape[0] - outcome.evaluations
         assert np.array_equal(run.pool[carried:], outcome.candidates)
@@ -107,7 +109,7 @@ def test_without_elitism_no_rate_is_measured():
     problem = onemax(20)
     ladder = PopulationLadder(problem, np.random.default_rng(3), smallest=16, elitism=False)
     for _ in range(10):
-        ladder.step(_counting_fitness(problem), 10 ** 9)
+        ladder.step(_counting_fitness(problem), 10**9)
     assert ladder.rates == []
 
 
@@ -118,14 +120,14 @@ def test_every_ended_run_met_an_ending_rule_and_the_runs_account_for_every_evalu
     while ladder.population is None or ladder.population < 512:  # a solved run converges: the next doubles
         before = ladder.populations
         reason = ladder.ending()
-        total += ladder.step(_counting_fitness(problem), 10 ** 9).evaluations
+        total += ladder.step(_counting_fitness(problem), 10**9).evaluations
         if before and ladder.populations != before:
             assert reason in ("converged", "stalled", "slow")
             assert ladder.rungs[-2]["ending"] == reason
         else:
             assert reason is None or not before
     pops = ladder.populations
-    assert pops == [16 * 2 ** k for k in range(len(pops))] and len(pops) >= 3
+    assert pops == [16 * 2**k for k in range(len(pops))] and len(pops) >= 3
     assert all(r["ending"] in ("converged", "stalled", "slow") for r in ladder.rungs[:-1])
     assert ladder.rungs[-1]["ending"] == "live"
     assert sum(r["evaluations"] for r in ladder.rungs) == total
@@ -133,12 +135,18 @@ def test_every_ended_run_met_an_ending_rule_and_the_runs_account_for_every_evalu
 
 def test_budget_is_respected_exactly_through_the_driver():
     for budget in (1, 31, 33, 1237, 5000):
-        search = Search(onemax(40), SearchSettings(population="auto"), StopRules(evaluations=budget, target=None),
-                        seed=3)
+        search = Search(
+            onemax(40), SearchSettings(population="auto"), StopRules(evaluations=budget, target=None), seed=3
+        )
         result = search.run()
         assert result.evaluations == budget
-        assert sum(r["evaluations"] - p["evaluations"] for p, r in zip([{"evaluations": 0}] + result.history,
-                                                                       result.history)) == budget
+        assert (
+            sum(
+                r["evaluations"] - p["evaluations"]
+                for p, r in zip([{"evaluations": 0}] + result.history, result.history)
+            )
+            == budget
+        )
 
 
 def test_each_step_stays_within_the_budget_it_is_given_and_never_starts_a_run_that_cannot_fit():
@@ -166,8 +174,12 @@ def test_each_step_stays_within_the_budget_it_is_given_and_never_starts_a_run_th
 
 def test_same_seed_same_run_other_seed_other_run():
     def run(seed):
-        return Search(trap(n=30, k=3, shuffle=True, seed=1), SearchSettings(population="auto"),
-                      StopRules(evaluations=4000, target=None), seed=seed).run()
+        return Search(
+            trap(n=30, k=3, shuffle=True, seed=1),
+            SearchSettings(population="auto"),
+            StopRules(evaluations=4000, target=None),
+            seed=seed,
+        ).run()
 
     first, again, other = run(7), run(7), run(8)
     assert [r["best"] for r in first.history] == [r["best"] for r in again.history]
@@ -180,8 +192,9 @@ def test_same_seed_same_run_other_seed_other_run():
 def test_solves_small_onemax_with_no_population_given(method):
     # OneMax n = 40: optimum n (all ones); every model-based method solves it easily.
     for seed in range(3):
-        result = Search(onemax(40), SearchSettings(method=method, population="auto"),
-                        StopRules(evaluations=60_000), seed=seed).run()
+        result = Search(
+            onemax(40), SearchSettings(method=method, population="auto"), StopRules(evaluations=60_000), seed=seed
+        ).run()
         assert result.stop_reason == "target" and result.best_score == 40
 
 
@@ -189,12 +202,13 @@ def test_tree_solves_a_small_shuffled_trap_with_no_population_given():
     # Trap-3, n = 30: optimum n, all ones (Deb & Goldberg, 1993, "Analyzing deception in trap functions").
     for seed in range(3):
         problem = trap(n=30, k=3, shuffle=True, seed=seed)
-        result = Search(problem, SearchSettings(method="tree", population="auto"),
-                        StopRules(evaluations=100_000), seed=seed).run()
+        result = Search(
+            problem, SearchSettings(method="tree", population="auto"), StopRules(evaluations=100_000), seed=seed
+        ).run()
         assert result.stop_reason == "target" and result.best_score == 30
 
 
-def _steps(ladder, problem, count, budget=10 ** 9):
+def _steps(ladder, problem, count, budget=10**9):
     return [ladder.step(_counting_fitness(problem), budget) for _ in range(count)]
 
 
@@ -235,8 +249,7 @@ def test_state_is_a_copy():
 def test_checkpoint_file_round_trip_of_a_search_with_auto_population(tmp_path):
     # Through optim.runs.checkpoint's .npz format and Search.get_state/set_state, as `optim resume` does.
     def fresh():
-        return Search(onemax(50), SearchSettings(population="auto"), StopRules(evaluations=6000, target=None),
-                      seed=5)
+        return Search(onemax(50), SearchSettings(population="auto"), StopRules(evaluations=6000, target=None), seed=5)
 
     search = fresh()
     for _ in range(25):
@@ -248,8 +261,9 @@ def test_checkpoint_file_round_trip_of_a_search_with_auto_population(tmp_path):
     resumed.set_state(state)
     got = [resumed.step() for _ in range(30)]
     for a, b in zip(expected, got):
-        assert {k: v for k, v in a.items() if k not in ("seconds", "time")} == \
-               {k: v for k, v in b.items() if k not in ("seconds", "time")}
+        assert {k: v for k, v in a.items() if k not in ("seconds", "time")} == {
+            k: v for k, v in b.items() if k not in ("seconds", "time")
+        }
 
 
 def test_model_and_entropy_come_from_the_current_run():
@@ -276,8 +290,10 @@ def test_auto_for_the_hill_climber_and_random_search_is_a_fixed_step():
         make_method("tree", problem, np.random.default_rng(0), population="big")
 
 
-@pytest.mark.parametrize("bad", [{"smallest": 3}, {"stall": 0}, {"smallest": 8.5}, {"window": 0},
-                                 {"rate": 1.0}, {"rate": -0.1}, {"stall": True}])
+@pytest.mark.parametrize(
+    "bad",
+    [{"smallest": 3}, {"stall": 0}, {"smallest": 8.5}, {"window": 0}, {"rate": 1.0}, {"rate": -0.1}, {"stall": True}],
+)
 def test_bad_ladder_parameters_are_rejected(bad):
     with pytest.raises(ValueError, match="PopulationLadder"):
         PopulationLadder(onemax(5), np.random.default_rng(0), **bad)
@@ -290,19 +306,27 @@ def test_auto_is_the_default_population():
 
 
 def test_run_configs_accept_auto_and_explain_the_choice():
-    config = parse_run_config(parse_yaml_text("problem:\n  use: onemax\nsearch:\n  population: auto\n"
-                                              "stop:\n  evaluations: 10\n", "run.yaml"))
+    config = parse_run_config(
+        parse_yaml_text("problem:\n  use: onemax\nsearch:\n  population: auto\nstop:\n  evaluations: 10\n", "run.yaml")
+    )
     assert config.search.population == "auto"
-    with pytest.raises(ConfigError, match=r"run.yaml:4: 'search.population': expected a whole number >= 2, "
-                                          r"or 'auto'"):
+    with pytest.raises(
+        ConfigError,
+        match=r"run.yaml:4: 'search.population': expected a whole number >= 2, "
+        r"or 'auto'",
+    ):
         parse_run_config(parse_yaml_text("problem:\n  use: onemax\nsearch:\n  population: lots\n", "run.yaml"))
 
 
 def test_the_log_names_the_population_of_every_generation():
-    result = Search(trap(n=30, k=3, shuffle=True, seed=3), SearchSettings(population="auto"),
-                    StopRules(evaluations=20_000, target=None), seed=3).run()
+    result = Search(
+        trap(n=30, k=3, shuffle=True, seed=3),
+        SearchSettings(population="auto"),
+        StopRules(evaluations=20_000, target=None),
+        seed=3,
+    ).run()
     populations = [record["population"] for record in result.history]
     assert populations[0] == 32 and populations == sorted(populations) and len(set(populations)) >= 3
-    assert all(p in {32 * 2 ** k for k in range(12)} for p in populations)
+    assert all(p in {32 * 2**k for k in range(12)} for p in populations)
     fixed = Search(onemax(20), SearchSettings(population=50), StopRules(evaluations=500), seed=1).run()
     assert {record["population"] for record in fixed.history} == {50}

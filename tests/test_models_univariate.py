@@ -141,9 +141,7 @@ def test_state_round_trip(cardinality):
     restored = Univariate().set_state(state)
     strings = all_strings(cardinality)
     assert np.array_equal(restored.log_prob(strings), model.log_prob(strings))
-    assert np.array_equal(
-        restored.sample(500, np.random.default_rng(10)), model.sample(500, np.random.default_rng(10))
-    )
+    assert np.array_equal(restored.sample(500, np.random.default_rng(10)), model.sample(500, np.random.default_rng(10)))
     assert restored.entropy() == model.entropy()
     model.fit(np.zeros_like(X))
     assert np.array_equal(restored.log_prob(strings), Univariate().set_state(state).log_prob(strings))

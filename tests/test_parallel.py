@@ -79,8 +79,14 @@ def cluster():
     import dask
 
     with dask.config.set({"distributed.scheduler.allowed-failures": 0}):  # the first worker death fails a task
-        local = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None,
-                                         scheduler_kwargs={"dashboard_address": "127.0.0.1:0"}, silence_logs=50)
+        local = distributed.LocalCluster(
+            n_workers=2,
+            threads_per_worker=1,
+            processes=True,
+            dashboard_address=None,
+            scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
+            silence_logs=50,
+        )
     client = distributed.Client(local)
     yield local, client
     client.close()
@@ -103,8 +109,10 @@ def test_a_local_dask_cluster_lives_as_long_as_the_run(tmp_path):
     pytest.importorskip("distributed")
     serial = contents(run(write_config(tmp_path, "serial", "score", stop={"evaluations": 120})).folder.path)
     seen = []
-    outcome = run(write_config(tmp_path, "local", "score", search={"dask": "local"}, stop={"evaluations": 120}),
-                  on_generation=lambda search, record: seen.append(search.evaluator._backend))
+    outcome = run(
+        write_config(tmp_path, "local", "score", search={"dask": "local"}, stop={"evaluations": 120}),
+        on_generation=lambda search, record: seen.append(search.evaluator._backend),
+    )
     backend = seen[0]
     assert backend.kind == "dask" and all(b is backend for b in seen)
     assert backend._client is None and backend._cluster is None  # closed with the run
@@ -132,10 +140,10 @@ def test_the_objective_reaches_each_dask_worker_once_per_run(cluster):
 def test_a_worker_killed_mid_generation_is_charged_to_its_candidate(tmp_path, cluster, where):
     search = {"jobs": 2} if where == "jobs" else {"dask": cluster[0].scheduler_address}
     stop = {"evaluations": 160}
-    reference = contents(run(write_config(tmp_path, "raise", "troublemaker", {"fault": "raise"}, stop=stop))
-                         .folder.path)
-    crashed = contents(run(write_config(tmp_path, "exit", "troublemaker", {"fault": "exit"}, search, stop))
-                       .folder.path)
+    reference = contents(
+        run(write_config(tmp_path, "raise", "troublemaker", {"fault": "raise"}, stop=stop)).folder.path
+    )
+    crashed = contents(run(write_config(tmp_path, "exit", "troublemaker", {"fault": "exit"}, search, stop)).folder.path)
     culprit = candidate_text(np.arange(16) % 2)
     assert [(f["candidate"], f["kind"]) for f in reference["failures"]] == [(culprit, "exception")]
     assert [(f["candidate"], f["kind"]) for f in crashed["failures"]] == [(culprit, "crash")]
@@ -146,11 +154,13 @@ def test_a_worker_killed_mid_generation_is_charged_to_its_candidate(tmp_path, cl
 def test_a_hanging_evaluation_times_out_and_the_run_goes_on(tmp_path, cluster, where):
     search = {"jobs": 2, "timeout": 1} if where == "jobs" else {"dask": cluster[0].scheduler_address, "timeout": 1}
     stop = {"evaluations": 160}
-    reference = contents(run(write_config(tmp_path, "raise", "troublemaker", {"fault": "raise"}, stop=stop))
-                         .folder.path)
+    reference = contents(
+        run(write_config(tmp_path, "raise", "troublemaker", {"fault": "raise"}, stop=stop)).folder.path
+    )
     started = time.monotonic()
-    hung = contents(run(write_config(tmp_path, "hang", "troublemaker", {"fault": "hang", "seconds": 60}, search,
-                                     stop)).folder.path)
+    hung = contents(
+        run(write_config(tmp_path, "hang", "troublemaker", {"fault": "hang", "seconds": 60}, search, stop)).folder.path
+    )
     took = time.monotonic() - started
     culprit = candidate_text(np.arange(16) % 2)
     assert [(f["candidate"], f["kind"]) for f in hung["failures"]] == [(culprit, "timeout")]
@@ -188,8 +198,9 @@ def test_the_cache_counts_calls_and_hits_and_changes_nothing_else(tmp_path):
     assert cached["log"][-1]["cache_hits"] > 0
     assert all(r["cache_hits"] == 0 and r["objective_calls"] == r["evaluations"] for r in plain["log"])
     counts = ("cache_hits", "objective_calls", "failures")  # a failed candidate served again is no new fault
-    assert ([{k: v for k, v in r.items() if k not in counts} for r in cached["log"]]
-            == [{k: v for k, v in r.items() if k not in counts} for r in plain["log"]])
+    assert [{k: v for k, v in r.items() if k not in counts} for r in cached["log"]] == [
+        {k: v for k, v in r.items() if k not in counts} for r in plain["log"]
+    ]
     assert cached["evaluated"] == plain["evaluated"]
     module = sys.modules[objectives.make_problem(f"{OBJECTIVES}:score", {"n": 7}).function.__module__]
     unlucky = np.all(candidates[:, :4] == module.UNLUCKY, axis=1)
@@ -202,9 +213,21 @@ def test_the_cache_counts_calls_and_hits_and_changes_nothing_else(tmp_path):
 def _start_scheduler_and_worker(tmp_path):
     env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(ROOT), os.environ.get("PYTHONPATH", "")]))
     address_file = tmp_path / "scheduler.json"
-    scheduler = subprocess.Popen([sys.executable, "-m", "distributed.cli.dask_scheduler", "--port", "0",
-                                  "--no-dashboard", "--scheduler-file", str(address_file)],
-                                 stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env)
+    scheduler = subprocess.Popen(
+        [
+            sys.executable,
+            "-m",
+            "distributed.cli.dask_scheduler",
+            "--port",
+            "0",
+            "--no-dashboard",
+            "--scheduler-file",
+            str(address_file),
+        ],
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+        env=env,
+    )
     give_up = time.monotonic() + 60
     while time.monotonic() < give_up:
         try:
@@ -215,8 +238,12 @@ def _start_scheduler_and_worker(tmp_path):
     else:
         scheduler.kill()
         pytest.fail("the dask scheduler did not start")
-    worker = subprocess.Popen([sys.executable, "-m", "distributed.cli.dask_worker", address, "--nthreads", "1",
-                               "--no-dashboard"], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env)
+    worker = subprocess.Popen(
+        [sys.executable, "-m", "distributed.cli.dask_worker", address, "--nthreads", "1", "--no-dashboard"],
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+        env=env,
+    )
     return scheduler, worker, address
 
 
@@ -225,13 +252,16 @@ def test_losing_the_scheduler_stops_the_run_with_a_checkpoint_to_resume(tmp_path
     scheduler, worker, address = _start_scheduler_and_worker(tmp_path)
     search, stop = {"population": 10}, {"evaluations": 30}
     try:
+
         def kill_soon(found, record):
             if record["generation"] == 0:
                 threading.Timer(0.1, scheduler.kill).start()  # while generation 1 is being evaluated
 
         with pytest.raises(ClusterUnavailable, match="lost the connection to the Dask scheduler") as caught:
-            run(write_config(tmp_path, "lost", "sleepy", search=dict(search, dask=address), stop=stop),
-                on_generation=kill_soon)
+            run(
+                write_config(tmp_path, "lost", "sleepy", search=dict(search, dask=address), stop=stop),
+                on_generation=kill_soon,
+            )
     finally:
         scheduler.kill()
         worker.kill()
@@ -282,11 +312,14 @@ def test_run_flags_jobs_and_dask(tmp_path, cluster, capsys):
     assert "'search.jobs': expected a whole number >= 1" in capsys.readouterr().err
 
 
-@pytest.mark.parametrize("key, value, expected", [
-    ("timeout", 0, "expected a number > 0, or null (no limit)"),
-    ("timeout", "soon", "expected a number > 0, or null (no limit)"),
-    ("dask", 8786, "expected a non-empty text, or null (evaluate on this machine)"),
-])
+@pytest.mark.parametrize(
+    "key, value, expected",
+    [
+        ("timeout", 0, "expected a number > 0, or null (no limit)"),
+        ("timeout", "soon", "expected a number > 0, or null (no limit)"),
+        ("dask", 8786, "expected a non-empty text, or null (evaluate on this machine)"),
+    ],
+)
 def test_config_checks_timeout_and_dask(tmp_path, key, value, expected):
     path = write_config(tmp_path, "bad", "score", search={key: value})
     with pytest.raises(ConfigError, match=re.escape(expected)) as caught:

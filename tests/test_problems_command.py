@@ -26,14 +26,18 @@ DATA = Path(__file__).parent / "data" / "commands"
 TOOL = str(DATA / "toy_tool.py")
 PYTHON = sys.executable
 
-SWITCHES = [{"flag": "-a"}, {"flag": "-b"}, {"flag": "-c"},
-            {"name": "level", "values": ["", "--level=1", "--level=2"]}]
+SWITCHES = [{"flag": "-a"}, {"flag": "-b"}, {"flag": "-c"}, {"name": "level", "values": ["", "--level=1", "--level=2"]}]
 
 
 def toy(score=None, variables=None, extra=(), **options):
     """A toy-tool problem: score = 1*a + 2*b + 4*c + 10*level unless the tool is told otherwise."""
-    return command([PYTHON, TOOL, *extra, "{flags}"], variables or SWITCHES,
-                   score or {"regex": r"score=(\d+)"}, options.pop("goal", "maximize"), **options)
+    return command(
+        [PYTHON, TOOL, *extra, "{flags}"],
+        variables or SWITCHES,
+        score or {"regex": r"score=(\d+)"},
+        options.pop("goal", "maximize"),
+        **options,
+    )
 
 
 def toy_score(x):
@@ -48,6 +52,7 @@ def failure(problem, x):
 
 
 # ---------------------------------------------------------------- building the command line
+
 
 def test_flags_expand_to_the_chosen_arguments_in_variable_order():
     problem = toy()
@@ -67,8 +72,13 @@ def test_value_texts_are_split_like_a_shell_would_without_a_shell():
 
 def test_single_variable_placeholders_whole_and_inside_an_argument(tmp_path):
     variables = [{"name": "opt", "values": ["s", "2"]}, {"name": "extra", "values": ["", "-x -y"]}]
-    problem = command([PYTHON, TOOL, "-O{opt}", "{extra}", "{config_dir}/in.txt", "out={workdir}/o",
-                       "{{literal}}"], variables, {"last_number": True}, "minimize", config_dir=str(tmp_path))
+    problem = command(
+        [PYTHON, TOOL, "-O{opt}", "{extra}", "{config_dir}/in.txt", "out={workdir}/o", "{{literal}}"],
+        variables,
+        {"last_number": True},
+        "minimize",
+        config_dir=str(tmp_path),
+    )
     args = problem.arguments([1, 1], workdir="/w")
     assert args == [PYTHON, TOOL, "-O2", "-x", "-y", f"{tmp_path.resolve()}/in.txt", "out=/w/o", "{literal}"]
     assert problem.arguments([0, 0], workdir="/w")[2:4] == ["-Os", f"{tmp_path.resolve()}/in.txt"]
@@ -85,63 +95,68 @@ def executable_tool(folder):
 
 def test_a_relative_program_path_is_resolved_against_the_config_folder(tmp_path):
     tool = executable_tool(tmp_path)
-    problem = command(["./tools/toy_tool.py", "{flags}"], SWITCHES, {"last_number": True}, "maximize",
-                      config_dir=str(tmp_path))
+    problem = command(
+        ["./tools/toy_tool.py", "{flags}"], SWITCHES, {"last_number": True}, "maximize", config_dir=str(tmp_path)
+    )
     assert problem.arguments([0, 0, 0, 0])[0] == str(tmp_path.resolve() / "tools" / "toy_tool.py")
     assert problem.evaluate_one(np.array([1, 0, 0, 1], dtype=np.uint8)) == 11
     with pytest.raises(ValueError, match="toy_tool.py' was not found or is not executable"):
-        command(["tools/toy_tool.py", "{flags}"], SWITCHES, {"last_number": True}, "maximize",
-                config_dir=str(tool.parent))
+        command(
+            ["tools/toy_tool.py", "{flags}"], SWITCHES, {"last_number": True}, "maximize", config_dir=str(tool.parent)
+        )
 
 
 def test_a_command_text_is_split_into_arguments():
-    problem = command(f"{shlex.quote(PYTHON)} {shlex.quote(TOOL)} --level=1 {{flags}}", SWITCHES,
-                      {"last_number": True}, "maximize")
+    problem = command(
+        f"{shlex.quote(PYTHON)} {shlex.quote(TOOL)} --level=1 {{flags}}", SWITCHES, {"last_number": True}, "maximize"
+    )
     assert problem.arguments([1, 0, 0, 0]) == [PYTHON, TOOL, "--level=1", "-a"]
 
 
-@pytest.mark.parametrize("options, message", [
-    (dict(command=[PYTHON, "--x={flags}"]), "must be a whole argument"),
-    (dict(command=[PYTHON, "{nope}", "{flags}"]), r"unknown placeholder \{nope\}"),
-    (dict(command=[PYTHON, "{config_dir}"]), "no placeholder takes the candidate"),
-    (dict(command=[PYTHON, "a{b", "{flags}"]), "lone"),
-    (dict(command=["no-such-program-for-optim-tests", "{flags}"]), "was not found"),
-    (dict(command=[]), "non-empty list"),
-    (dict(variables=[{"name": "flags", "values": ["", "-x"]}]), "reserved"),
-    (dict(variables=[{"flag": "-a"}, {"name": "a", "values": ["", "-b"]}]), "also the name of variables"),
-    (dict(variables=[{"name": "x", "values": ["-x"]}]), "2 to 256 texts"),
-    (dict(variables=[{"name": "x", "values": ["-x", "-x"]}]), "distinct"),
-    (dict(variables=[{"values": ["", "-x"]}]), "needs a 'name'"),
-    (dict(variables=[{"flag": "-x", "values": ["", "-x"]}]), "not both"),
-    (dict(variables=[{"name": "x y", "values": ["", "-x"]}]), "spaces or braces"),
-    (dict(variables=[{"name": "x", "values": ["", "'unclosed"]}]), "cannot be split"),
-    (dict(variables=[]), "non-empty list"),
-    (dict(score={"regex": "(", "file_size": "x"}), "exactly one of"),
-    (dict(score={"regex": "("}), "not a valid regular expression"),
-    (dict(score={"size": "x"}), "unknown key 'size'"),
-    (dict(score={"json": {"file": "r.json"}}), "score.json"),
-    (dict(score={"file_size": "out", "stream": "stderr"}), "only regex and last_number"),
-    (dict(score={"last_number": True, "stream": "stdin"}), "stdout or stderr"),
-    (dict(score="score=(\\d+)"), "expected a mapping"),
-    (dict(goal="smaller"), "goal"),
-    (dict(timeout=0), "timeout"),
-    (dict(timeout="30"), "timeout"),
-    (dict(workdir="no/such/folder"), "does not exist"),
-    (dict(env={"1BAD": "x"}), "not a valid environment variable name"),
-    (dict(env={"X": "{nope}"}), r"env\.X: unknown placeholder \{nope\}"),
-    (dict(score={"file_size": "{flags}.bin"}), r"score\.file_size: unknown placeholder \{flags\}"),
-    (dict(start=[[0, 0, 0]]), "expected 4 values"),
-    (dict(start=[[0, 0, 0, 3]]), r"start\[0\]\[3\] \(level\)"),
-    (dict(start=[{"level": "--level=7"}]), r"start\[0\]\.level"),
-    (dict(start=[{"d": 1}]), "no variable is named 'd'"),
-    (dict(start=["01x0"]), "digits only"),
-    (dict(rerun="yes"), "rerun"),
-    (dict(shell=True), "one text"),
-    (dict(shell=True, command="echo {flags}"), r"write \"\$@\" instead of \{flags\}"),
-])
+@pytest.mark.parametrize(
+    "options, message",
+    [
+        (dict(command=[PYTHON, "--x={flags}"]), "must be a whole argument"),
+        (dict(command=[PYTHON, "{nope}", "{flags}"]), r"unknown placeholder \{nope\}"),
+        (dict(command=[PYTHON, "{config_dir}"]), "no placeholder takes the candidate"),
+        (dict(command=[PYTHON, "a{b", "{flags}"]), "lone"),
+        (dict(command=["no-such-program-for-optim-tests", "{flags}"]), "was not found"),
+        (dict(command=[]), "non-empty list"),
+        (dict(variables=[{"name": "flags", "values": ["", "-x"]}]), "reserved"),
+        (dict(variables=[{"flag": "-a"}, {"name": "a", "values": ["", "-b"]}]), "also the name of variables"),
+        (dict(variables=[{"name": "x", "values": ["-x"]}]), "2 to 256 texts"),
+        (dict(variables=[{"name": "x", "values": ["-x", "-x"]}]), "distinct"),
+        (dict(variables=[{"values": ["", "-x"]}]), "needs a 'name'"),
+        (dict(variables=[{"flag": "-x", "values": ["", "-x"]}]), "not both"),
+        (dict(variables=[{"name": "x y", "values": ["", "-x"]}]), "spaces or braces"),
+        (dict(variables=[{"name": "x", "values": ["", "'unclosed"]}]), "cannot be split"),
+        (dict(variables=[]), "non-empty list"),
+        (dict(score={"regex": "(", "file_size": "x"}), "exactly one of"),
+        (dict(score={"regex": "("}), "not a valid regular expression"),
+        (dict(score={"size": "x"}), "unknown key 'size'"),
+        (dict(score={"json": {"file": "r.json"}}), "score.json"),
+        (dict(score={"file_size": "out", "stream": "stderr"}), "only regex and last_number"),
+        (dict(score={"last_number": True, "stream": "stdin"}), "stdout or stderr"),
+        (dict(score="score=(\\d+)"), "expected a mapping"),
+        (dict(goal="smaller"), "goal"),
+        (dict(timeout=0), "timeout"),
+        (dict(timeout="30"), "timeout"),
+        (dict(workdir="no/such/folder"), "does not exist"),
+        (dict(env={"1BAD": "x"}), "not a valid environment variable name"),
+        (dict(env={"X": "{nope}"}), r"env\.X: unknown placeholder \{nope\}"),
+        (dict(score={"file_size": "{flags}.bin"}), r"score\.file_size: unknown placeholder \{flags\}"),
+        (dict(start=[[0, 0, 0]]), "expected 4 values"),
+        (dict(start=[[0, 0, 0, 3]]), r"start\[0\]\[3\] \(level\)"),
+        (dict(start=[{"level": "--level=7"}]), r"start\[0\]\.level"),
+        (dict(start=[{"d": 1}]), "no variable is named 'd'"),
+        (dict(start=["01x0"]), "digits only"),
+        (dict(rerun="yes"), "rerun"),
+        (dict(shell=True), "one text"),
+        (dict(shell=True, command="echo {flags}"), r"write \"\$@\" instead of \{flags\}"),
+    ],
+)
 def test_bad_options_are_rejected_with_the_option_named(options, message):
-    settings = dict(command=[PYTHON, TOOL, "{flags}"], variables=SWITCHES, score={"last_number": True},
-                    goal="maximize")
+    settings = dict(command=[PYTHON, TOOL, "{flags}"], variables=SWITCHES, score={"last_number": True}, goal="maximize")
     settings.update(options)
     with pytest.raises(ValueError, match=message):
         command(**settings)
@@ -149,34 +164,41 @@ def test_bad_options_are_rejected_with_the_option_named(options, message):
 
 def test_the_registry_reports_bad_options_as_one_line_problem_errors():
     with pytest.raises(objectives.ProblemError, match=r"problem 'command': goal: expected minimize or maximize") as e:
-        objectives.make_problem("command", dict(command=[PYTHON, "{flags}"], variables=SWITCHES,
-                                              score={"last_number": True}, goal="less"))
+        objectives.make_problem(
+            "command", dict(command=[PYTHON, "{flags}"], variables=SWITCHES, score={"last_number": True}, goal="less")
+        )
     assert "\n" not in str(e.value)
     with pytest.raises(objectives.ProblemError, match="missing parameter 'goal'"):
-        objectives.make_problem("command", dict(command=[PYTHON, "{flags}"], variables=SWITCHES,
-                                              score={"last_number": True}))
+        objectives.make_problem(
+            "command", dict(command=[PYTHON, "{flags}"], variables=SWITCHES, score={"last_number": True})
+        )
 
 
 # ---------------------------------------------------------------- running and scoring
 
+
 def test_scores_match_the_tool_for_every_candidate_of_a_small_space():
     problem = toy()
-    X = np.array([[a, b, c, level] for a in (0, 1) for b in (0, 1) for c in (0, 1) for level in (0, 1, 2)],
-                 dtype=np.uint8)
+    X = np.array(
+        [[a, b, c, level] for a in (0, 1) for b in (0, 1) for c in (0, 1) for level in (0, 1, 2)], dtype=np.uint8
+    )
     expected = np.array([toy_score(x) for x in X.astype(int)], dtype=float)
     scores = Evaluator(problem, jobs=2)(X)  # threads, two commands at a time
     np.testing.assert_array_equal(scores, expected)
     np.testing.assert_array_equal(problem.evaluate(X[:3]), expected[:3])
 
 
-@pytest.mark.parametrize("score, extra", [
-    ({"regex": r"score=(\d+)"}, ()),
-    ({"regex": r"(?<=score=)\d+"}, ()),
-    ({"last_number": True}, ()),
-    ({"json": {"file": "r.json", "key": "result.score"}}, ("--report=r.json",)),
-    ({"json": {"file": "{workdir}/r.json", "key": "runs.0"}}, ("--report=r.json",)),
-    ({"file_size": "sized.bin"}, ("--bytes=sized.bin",)),
-])
+@pytest.mark.parametrize(
+    "score, extra",
+    [
+        ({"regex": r"score=(\d+)"}, ()),
+        ({"regex": r"(?<=score=)\d+"}, ()),
+        ({"last_number": True}, ()),
+        ({"json": {"file": "r.json", "key": "result.score"}}, ("--report=r.json",)),
+        ({"json": {"file": "{workdir}/r.json", "key": "runs.0"}}, ("--report=r.json",)),
+        ({"file_size": "sized.bin"}, ("--bytes=sized.bin",)),
+    ],
+)
 def test_each_score_mode_reads_the_same_number(score, extra):
     problem = toy(score=score, extra=extra)
     for x in ([1, 1, 0, 2], [0, 0, 1, 1]):
@@ -193,8 +215,7 @@ def test_json_on_standard_output(tmp_path):
 def test_standard_error_can_be_the_score_stream(tmp_path):
     script = tmp_path / "emit.py"
     script.write_text("import sys\nprint('noise 99')\nprint('elapsed 0.25 s', file=sys.stderr)\n")
-    problem = command([PYTHON, str(script), "{flags}"], SWITCHES, {"last_number": True, "stream": "stderr"},
-                      "minimize")
+    problem = command([PYTHON, str(script), "{flags}"], SWITCHES, {"last_number": True, "stream": "stderr"}, "minimize")
     assert problem.evaluate_one(np.zeros(4, dtype=np.uint8)) == 0.25
 
 
@@ -273,8 +294,12 @@ def test_each_evaluation_gets_a_fresh_folder_that_is_removed_afterwards(tmp_path
 
 
 def test_a_fixed_workdir_and_environment_additions(tmp_path):
-    problem = toy(score={"file_size": "sized.bin"}, extra=("--bytes=sized.bin",), workdir=str(tmp_path),
-                  env={"TOY_SETTING": "{workdir}/cache"})
+    problem = toy(
+        score={"file_size": "sized.bin"},
+        extra=("--bytes=sized.bin",),
+        workdir=str(tmp_path),
+        env={"TOY_SETTING": "{workdir}/cache"},
+    )
     assert problem.evaluate_one(np.array([0, 1, 1, 0], dtype=np.uint8)) == 6
     assert (tmp_path / "sized.bin").stat().st_size == 6
     assert problem.environment(tmp_path)["TOY_SETTING"] == f"{tmp_path}/cache"
@@ -286,14 +311,14 @@ def test_a_fixed_workdir_and_environment_additions(tmp_path):
 def test_shell_mode_passes_the_candidate_as_positional_parameters(tmp_path):
     variables = [{"name": "risky", "values": ["", "'$(echo injected)'"]}, {"flag": "-a"}]
     script = 'printf "%s\\n" "$@" > {workdir}/args.txt; echo "count=$#"'
-    problem = command(script, variables, {"regex": r"count=(\d+)"}, "maximize", shell=True,
-                      workdir=str(tmp_path))
+    problem = command(script, variables, {"regex": r"count=(\d+)"}, "maximize", shell=True, workdir=str(tmp_path))
     assert problem.arguments([1, 1], workdir=tmp_path)[:2] == ["/bin/sh", "-c"]
     assert problem.evaluate_one(np.array([1, 1], dtype=np.uint8)) == 2
     assert (tmp_path / "args.txt").read_text().splitlines() == ["$(echo injected)", "-a"]
 
 
 # ---------------------------------------------------------------- caching, starting points, runs
+
 
 def test_repeated_candidates_are_cached_unless_rerun_is_set():
     assert toy().cache_by_default is True
@@ -303,8 +328,9 @@ def test_repeated_candidates_are_cached_unless_rerun_is_set():
 
 def test_starting_candidates_in_every_form():
     problem = toy(start=[{}, [1, 0, 1, 2], "0101", {"b": 1, "level": "--level=2"}])
-    np.testing.assert_array_equal(problem.initial_candidates(),
-                                  [[0, 0, 0, 0], [1, 0, 1, 2], [0, 1, 0, 1], [0, 1, 0, 2]])
+    np.testing.assert_array_equal(
+        problem.initial_candidates(), [[0, 0, 0, 0], [1, 0, 1, 2], [0, 1, 0, 1], [0, 1, 0, 2]]
+    )
     assert problem.initial_candidates().dtype == np.uint8
     assert toy().initial_candidates() is None
     from_numpy = toy(start=np.array([[1, 1, 0, 2]], dtype=np.int64))
@@ -314,8 +340,13 @@ def test_starting_candidates_in_every_form():
 def test_a_search_includes_the_start_and_never_ends_worse_than_it():
     # a minimised score whose uniform random candidates are all worse than the start
     problem = toy(goal="minimize", start=[[0, 0, 0, 0]])
-    search = Search(problem, SearchSettings(population=6, jobs=2), StopRules(evaluations=12, target=None), seed=3,
-                    keep_evaluated=True)
+    search = Search(
+        problem,
+        SearchSettings(population=6, jobs=2),
+        StopRules(evaluations=12, target=None),
+        seed=3,
+        keep_evaluated=True,
+    )
     result = search.run()
     candidates, scores, _ = search.evaluated()
     np.testing.assert_array_equal(candidates[0], [0, 0, 0, 0])
@@ -325,8 +356,19 @@ def test_a_search_includes_the_start_and_never_ends_worse_than_it():
 
 def test_the_factory_documents_every_parameter_and_the_caution():
     documented = {p.name: p.description for p in objectives.factory_parameters(objectives.get_factory("command"))}
-    assert set(documented) == {"command", "variables", "score", "goal", "timeout", "workdir", "env", "start",
-                               "rerun", "shell", "config_dir"}
+    assert set(documented) == {
+        "command",
+        "variables",
+        "score",
+        "goal",
+        "timeout",
+        "workdir",
+        "env",
+        "start",
+        "rerun",
+        "shell",
+        "config_dir",
+    }
     assert all(documented.values())
     assert "DANGER" in documented["shell"]
     summary = command.__doc__.strip().splitlines()[0]
@@ -345,8 +387,12 @@ def test_a_config_run_records_failures_and_goes_on(tmp_path):
         "problem": {
             "use": "command",
             "command": ["tools/toy_tool.py", "{flags}", "--report={workdir}/r.json"],
-            "variables": [{"flag": "-a"}, {"flag": "-b"}, {"flag": "-c"},
-                          {"name": "broken", "values": ["", "--fail=4"]}],
+            "variables": [
+                {"flag": "-a"},
+                {"flag": "-b"},
+                {"flag": "-c"},
+                {"name": "broken", "values": ["", "--fail=4"]},
+            ],
             "score": {"json": {"file": "r.json", "key": "result.score"}},
             "goal": "maximize",
             "start": [{}],

@@ -41,9 +41,7 @@ def _slow_penalty(problem, x):
     value = sum(int(problem.values[j]) for j in range(problem.n) if x[j])
     if weight <= problem.capacity:
         return float(value)
-    ratios = [
-        problem.values[j] / problem.weights[j] for j in range(problem.n) if problem.weights[j] > 0
-    ]
+    ratios = [problem.values[j] / problem.weights[j] for j in range(problem.n) if problem.weights[j] > 0]
     lam = 1 + max(ratios)
     return value - lam * (weight - problem.capacity) - int(problem.values.sum())
 
@@ -85,9 +83,7 @@ def test_repair_keeps_zero_weight_items_and_feasible_candidates():
     problem = KnapsackProblem([0, 5, 4, 7], [3, 10, 2, 7], capacity=6)
     X = np.array([[1, 1, 1, 1], [1, 0, 1, 0], [0, 0, 0, 0]], np.uint8)
     for x, r in zip(X, problem.repair(X)):
-        assert np.flatnonzero(r).tolist() == sorted(
-            _slow_repair(problem.weights, problem.values, 6, x)
-        )
+        assert np.flatnonzero(r).tolist() == sorted(_slow_repair(problem.weights, problem.values, 6, x))
     np.testing.assert_array_equal(problem.repair(X[1:]), X[1:])
 
 
@@ -140,9 +136,7 @@ def test_dynamic_programme_within_dantzig_bound():
     weights, values = generate_items(60, kind="strongly-correlated", seed=43)
     capacity = int(weights.sum() * 0.35)
     best, _ = dp_knapsack(weights, values, capacity)
-    relaxed = linprog(
-        -values.astype(float), A_ub=weights[None, :].astype(float), b_ub=[capacity], bounds=(0, 1)
-    )
+    relaxed = linprog(-values.astype(float), A_ub=weights[None, :].astype(float), b_ub=[capacity], bounds=(0, 1))
     upper = -relaxed.fun
     assert upper - values.max() - 1e-6 <= best <= upper + 1e-6
 
@@ -203,9 +197,7 @@ def test_factory_defaults():
     assert "dynamic programming" in problem.optimum_source
     assert knapsack(solve=False).optimum is None
     penalty = knapsack(constraint="penalty")
-    assert (
-        penalty.optimum == problem.optimum and penalty.evaluate(np.ones((1, 40), np.uint8))[0] < 0
-    )
+    assert penalty.optimum == problem.optimum and penalty.evaluate(np.ones((1, 40), np.uint8))[0] < 0
     with pytest.raises(ValueError, match="constraint must be"):
         knapsack(constraint="ignore")
     with pytest.raises(ValueError, match="capacity_ratio"):
@@ -217,11 +209,7 @@ def test_factory_reads_csv_and_yaml_examples():
     from_yaml = knapsack(EXAMPLES / "knapsack-hiking-pack.yaml")
     assert from_csv.variable_names == from_yaml.variable_names
     np.testing.assert_array_equal(from_csv.weights, from_yaml.weights)
-    assert (
-        from_csv.optimum
-        == from_yaml.optimum
-        == _milp_optimum(from_csv.weights, from_csv.values, 40)
-    )
+    assert from_csv.optimum == from_yaml.optimum == _milp_optimum(from_csv.weights, from_csv.values, 40)
     assert knapsack(EXAMPLES / "knapsack-hiking-pack.yaml", capacity=10).capacity == 10
     with pytest.raises(ValueError, match="needs the capacity"):
         knapsack(EXAMPLES / "knapsack-hiking-pack.csv")
@@ -263,9 +251,7 @@ def test_csv_rejects_wrong_field_count(tmp_path):
     assert error.line == 3 and "expected 3 fields" in error.reason
 
 
-@pytest.mark.parametrize(
-    "row, what", [("lamp,1.5,2", "weight"), ("lamp,1,-2", "value"), ("lamp,,2", "weight")]
-)
+@pytest.mark.parametrize("row, what", [("lamp,1.5,2", "weight"), ("lamp,1,-2", "value"), ("lamp,,2", "weight")])
 def test_csv_rejects_bad_numbers(tmp_path, row, what):
     error = _csv_error(tmp_path, f"name,weight,value\nrope,1,1\n{row}\n")
     assert error.line == 3 and f"non-negative integer {what}" in error.reason
@@ -325,7 +311,5 @@ def test_yaml_rejects_bad_items(tmp_path):
 
 
 def test_yaml_rejects_unknown_key(tmp_path):
-    error = _yaml_error(
-        tmp_path, "capacity: 5\nitems:\n  - {name: a, weight: 1, value: 2}\nbudget: 3\n"
-    )
+    error = _yaml_error(tmp_path, "capacity: 5\nitems:\n  - {name: a, weight: 1, value: 2}\nbudget: 3\n")
     assert error.line == 4 and "unexpected key 'budget'" in error.reason

@@ -139,7 +139,10 @@ def test_factory_parameters_of_problem_subclass():
     from optim.objectives.loader import load_object
 
     cls = load_object(f"{EXAMPLES}:AlternatingLamps", DATA)
-    assert factory_parameters(cls) == [("n", 10, "Number of lamps in the row."), ("bonus", 0.0, "Added to every score.")]
+    assert factory_parameters(cls) == [
+        ("n", 10, "Number of lamps in the row."),
+        ("bonus", 0.0, "Added to every score."),
+    ]
 
 
 # ---------------------------------------------------------------- loading user objectives
@@ -171,8 +174,11 @@ def test_problem_subclass_is_a_factory():
 def test_problem_instance():
     problem = load("READY_MADE")
     assert problem.n == 5
-    expect_error(r"'example_objectives.py:READY_MADE' is a ready-made Problem and takes no parameters; got n",
-                 f"{EXAMPLES}:READY_MADE", {"n": 4})
+    expect_error(
+        r"'example_objectives.py:READY_MADE' is a ready-made Problem and takes no parameters; got n",
+        f"{EXAMPLES}:READY_MADE",
+        {"n": 4},
+    )
 
 
 def test_plain_per_candidate_function():
@@ -269,22 +275,36 @@ def test_missing_callable_lists_those_present():
     message = expect_error("no callable 'lamp_score'", f"{EXAMPLES}:lamp_score")
     listed = message.split("callables there: ")[1].split(", ")
     assert listed == sorted(
-        ["AlternatingLamps", "NotAProblem", "READY_MADE", "lamp_count_text", "lit_every_third",
-         "lit_total", "sized_lamps", "two_rows", "weighted_lamps"]
+        [
+            "AlternatingLamps",
+            "NotAProblem",
+            "READY_MADE",
+            "lamp_count_text",
+            "lit_every_third",
+            "lit_total",
+            "sized_lamps",
+            "two_rows",
+            "weighted_lamps",
+        ]
     )
 
 
 def test_module_not_importable():
-    expect_error(r"^cannot import module 'no_such_lamp_module': no module named 'no_such_lamp_module'$",
-                 "no_such_lamp_module:thing")
+    expect_error(
+        r"^cannot import module 'no_such_lamp_module': no module named 'no_such_lamp_module'$",
+        "no_such_lamp_module:thing",
+    )
     expect_error(r"no module named 'no_such_lamp_module'", "no_such_lamp_module.sub:thing")
 
 
 def test_module_failing_inside_names_exception_and_place(tmp_path, monkeypatch):
     (tmp_path / "lamp_broken_module.py").write_text("import math\nimport lamp_missing_dependency\n")
     monkeypatch.syspath_prepend(str(tmp_path))
-    message = expect_error(r"cannot import module 'lamp_broken_module': ModuleNotFoundError: "
-                           r"No module named 'lamp_missing_dependency'", "lamp_broken_module:f")
+    message = expect_error(
+        r"cannot import module 'lamp_broken_module': ModuleNotFoundError: "
+        r"No module named 'lamp_missing_dependency'",
+        "lamp_broken_module:f",
+    )
     assert "lamp_broken_module.py, line 2)" in message
     monkeypatch.delitem(sys.modules, "lamp_broken_module", raising=False)
 
@@ -295,34 +315,52 @@ def test_callable_missing_in_module():
 
 
 def test_unknown_factory_parameter():
-    message = expect_error(r"unknown parameter 'kk' for problem 'trap' \(accepted: n, k, shuffle, seed\)",
-                           "trap", {"kk": 3})
+    message = expect_error(
+        r"unknown parameter 'kk' for problem 'trap' \(accepted: n, k, shuffle, seed\)", "trap", {"kk": 3}
+    )
     assert message.endswith("did you mean 'k'?")
-    expect_error(r"unknown parameter 'size' for problem 'example_objectives.py:AlternatingLamps' "
-                 r"\(accepted: n, bonus\)", f"{EXAMPLES}:AlternatingLamps", {"size": 3})
+    expect_error(
+        r"unknown parameter 'size' for problem 'example_objectives.py:AlternatingLamps' "
+        r"\(accepted: n, bonus\)",
+        f"{EXAMPLES}:AlternatingLamps",
+        {"size": 3},
+    )
 
 
 def test_unknown_objective_parameter():
-    message = expect_error(r"unknown parameter 'colour' .*\(accepted: n, cardinality, goal, vectorized, "
-                           r"optimum, variable_names\)", f"{EXAMPLES}:lit_total", {"n": 3, "colour": "red"})
+    message = expect_error(
+        r"unknown parameter 'colour' .*\(accepted: n, cardinality, goal, vectorized, "
+        r"optimum, variable_names\)",
+        f"{EXAMPLES}:lit_total",
+        {"n": 3, "colour": "red"},
+    )
     assert "lit_total" in message
 
 
 def test_missing_factory_parameter():
-    message = expect_error(r"^missing parameter 'size' for problem 'example_objectives.py:sized_lamps' "
-                           r"\(accepted: size, pattern\)", f"{EXAMPLES}:sized_lamps", {"pattern": "x"})
+    message = expect_error(
+        r"^missing parameter 'size' for problem 'example_objectives.py:sized_lamps' "
+        r"\(accepted: size, pattern\)",
+        f"{EXAMPLES}:sized_lamps",
+        {"pattern": "x"},
+    )
     assert message.endswith("if it is an objective function, give the number of variables as parameter 'n'")
 
 
 def test_objective_without_n_hints_at_n():
-    expect_error(r"missing parameter 'x' .*give the number of variables as parameter 'n'",
-                 f"{EXAMPLES}:lit_every_third")
+    expect_error(
+        r"missing parameter 'x' .*give the number of variables as parameter 'n'", f"{EXAMPLES}:lit_every_third"
+    )
 
 
 def test_objective_taking_two_arguments():
     # Two required arguments: not an objective function, so 'n' is an unknown factory parameter.
-    message = expect_error(r"^unknown parameter 'n' for problem 'example_objectives.py:two_rows' "
-                           r"\(accepted: x, y\)", f"{EXAMPLES}:two_rows", {"n": 3})
+    message = expect_error(
+        r"^unknown parameter 'n' for problem 'example_objectives.py:two_rows' "
+        r"\(accepted: x, y\)",
+        f"{EXAMPLES}:two_rows",
+        {"n": 3},
+    )
     assert message.endswith("an objective function must take exactly one required argument, the candidate")
 
 
@@ -352,30 +390,44 @@ def test_registered_factories_are_never_objective_functions(monkeypatch):
 
 
 def test_vectorized_must_be_boolean():
-    expect_error(r"parameter 'vectorized' .* must be true or false; got 'yes'",
-                 f"{EXAMPLES}:lit_total", {"n": 3, "vectorized": "yes"})
+    expect_error(
+        r"parameter 'vectorized' .* must be true or false; got 'yes'",
+        f"{EXAMPLES}:lit_total",
+        {"n": 3, "vectorized": "yes"},
+    )
 
 
 def test_bad_objective_option_is_wrapped():
-    expect_error(r"problem 'example_objectives.py:lit_total': goal must be one of",
-                 f"{EXAMPLES}:lit_total", {"n": 3, "goal": "best"})
+    expect_error(
+        r"problem 'example_objectives.py:lit_total': goal must be one of",
+        f"{EXAMPLES}:lit_total",
+        {"n": 3, "goal": "best"},
+    )
 
 
 def test_factory_value_error_is_wrapped():
     message = expect_error(r"^problem 'trap': n must be a positive multiple of k=3; got n=10$", "trap", {"n": 10})
-    expect_error(r"^problem 'example_objectives.py:weighted_lamps': weight must be positive; got -1$",
-                 f"{EXAMPLES}:weighted_lamps", {"weight": -1})
+    expect_error(
+        r"^problem 'example_objectives.py:weighted_lamps': weight must be positive; got -1$",
+        f"{EXAMPLES}:weighted_lamps",
+        {"weight": -1},
+    )
     assert message
 
 
 def test_factory_type_error_is_wrapped():
-    expect_error(r"^problem 'example_objectives.py:sized_lamps': pattern must be a string; got int$",
-                 f"{EXAMPLES}:sized_lamps", {"size": 4, "pattern": 5})
+    expect_error(
+        r"^problem 'example_objectives.py:sized_lamps': pattern must be a string; got int$",
+        f"{EXAMPLES}:sized_lamps",
+        {"size": 4, "pattern": 5},
+    )
 
 
 def test_factory_returning_something_else():
-    expect_error(r"^factory 'example_objectives.py:lamp_count_text' returned a int, not a Problem$",
-                 f"{EXAMPLES}:lamp_count_text")
+    expect_error(
+        r"^factory 'example_objectives.py:lamp_count_text' returned a int, not a Problem$",
+        f"{EXAMPLES}:lamp_count_text",
+    )
 
 
 def test_class_that_is_not_a_problem():
@@ -383,8 +435,7 @@ def test_class_that_is_not_a_problem():
 
 
 def test_attribute_that_is_not_callable():
-    expect_error(r"LAMP_LIMIT' is a int, not a Problem, a Problem subclass or a callable",
-                 f"{EXAMPLES}:LAMP_LIMIT")
+    expect_error(r"LAMP_LIMIT' is a int, not a Problem, a Problem subclass or a callable", f"{EXAMPLES}:LAMP_LIMIT")
 
 
 def test_bad_params_and_names():

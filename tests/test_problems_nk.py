@@ -121,9 +121,7 @@ def test_exhaustive_maximum_equals_itertools_enumeration():
 
 
 def test_adjacent_neighbours_are_the_next_k_cyclically():
-    np.testing.assert_array_equal(
-        adjacent_neighbours(5, 2), [[1, 2], [2, 3], [3, 4], [4, 0], [0, 1]]
-    )
+    np.testing.assert_array_equal(adjacent_neighbours(5, 2), [[1, 2], [2, 3], [3, 4], [4, 0], [0, 1]])
     assert nk_landscape(10, 3, solve=False).is_adjacent
 
 

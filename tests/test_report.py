@@ -112,9 +112,11 @@ def test_vargha_delaney_a_is_u_over_mn_and_a_double_loop():
 
 
 def test_a_missed_target_ranks_behind_every_success():
-    records = [{"hit_target": True, "evaluations_to_target": 900, "evaluations": 1000},
-               {"hit_target": False, "evaluations_to_target": None, "evaluations": 1000},
-               {"hit_target": True, "evaluations_to_target": 1000, "evaluations": 1000}]
+    records = [
+        {"hit_target": True, "evaluations_to_target": 900, "evaluations": 1000},
+        {"hit_target": False, "evaluations_to_target": None, "evaluations": 1000},
+        {"hit_target": True, "evaluations_to_target": 1000, "evaluations": 1000},
+    ]
     assert penalised_evaluations(records, 1000).tolist() == [900, 1001, 1000]
     # 900 + 1000 (the whole failed run) + 1000, over two successes
     assert expected_running_time(records) == pytest.approx(2900 / 2)

@@ -21,16 +21,22 @@ ENV = dict(os.environ, PYTHONPATH=os.pathsep.join([str(ROOT), os.environ.get("PY
 
 def config(tmp_path, every=1, method="tree", use="trap", extra=""):
     path = tmp_path / f"run-{method}-{every}.yaml"
-    problem = ("problem:\n  use: trap\n  n: 30\n  shuffle: true\n  seed: 4\n" if use == "trap" else
-               f"problem:\n  use: {DATA / 'slow_trap.py'}:score\n  n: 30\n  vectorized: true\n")
-    path.write_text(f"name: survive\n{problem}search:\n  method: {method}\n  population: 120\n"
-                    f"stop:\n  evaluations: 6000\n  target: null\nseed: 3\ncheckpoint_every: {every}\n{extra}")
+    problem = (
+        "problem:\n  use: trap\n  n: 30\n  shuffle: true\n  seed: 4\n"
+        if use == "trap"
+        else f"problem:\n  use: {DATA / 'slow_trap.py'}:score\n  n: 30\n  vectorized: true\n"
+    )
+    path.write_text(
+        f"name: survive\n{problem}search:\n  method: {method}\n  population: 120\n"
+        f"stop:\n  evaluations: 6000\n  target: null\nseed: 3\ncheckpoint_every: {every}\n{extra}"
+    )
     return path
 
 
 def optim_cli(*args, **kwargs):
-    return subprocess.run([sys.executable, "-m", "optim", *args], capture_output=True, text=True, cwd=ROOT,
-                          env=ENV, **kwargs)
+    return subprocess.run(
+        [sys.executable, "-m", "optim", *args], capture_output=True, text=True, cwd=ROOT, env=ENV, **kwargs
+    )
 
 
 def run_folder(out):
@@ -65,12 +71,12 @@ def reference(tmp_path_factory):
 
 
 KILL_POINTS = [
-    ("evaluation", 1, 1, "tree"),    # before the first generation is complete: nothing to resume from yet
+    ("evaluation", 1, 1, "tree"),  # before the first generation is complete: nothing to resume from yet
     ("evaluation", 4, 1, "tree"),
-    ("evaluation", 9, 3, "tree"),    # between checkpoints: generations after the checkpoint are redone
-    ("after-log", 5, 1, "tree"),     # the log line is written, its checkpoint is not
+    ("evaluation", 9, 3, "tree"),  # between checkpoints: generations after the checkpoint are redone
+    ("after-log", 5, 1, "tree"),  # the log line is written, its checkpoint is not
     ("after-log", 7, 3, "tree"),
-    ("checkpoint", 3, 1, "tree"),    # half of a checkpoint written to its temporary file
+    ("checkpoint", 3, 1, "tree"),  # half of a checkpoint written to its temporary file
     ("checkpoint", 2, 3, "tree"),
     ("evaluation", 30, 2, "hillclimb"),
     ("after-log", 4, 2, "hillclimb"),
@@ -80,9 +86,24 @@ KILL_POINTS = [
 @pytest.mark.parametrize("mode, k, every, method", KILL_POINTS)
 def test_sigkill_then_resume_equals_the_uninterrupted_run(tmp_path, reference, mode, k, every, method):
     out = tmp_path / "out"
-    killed = subprocess.run([sys.executable, str(DATA / "killer.py"), mode, str(k), "--", "run",
-                             str(config(tmp_path, every, method)), "--out", str(out), "--quiet"],
-                            capture_output=True, text=True, cwd=ROOT, env=ENV)
+    killed = subprocess.run(
+        [
+            sys.executable,
+            str(DATA / "killer.py"),
+            mode,
+            str(k),
+            "--",
+            "run",
+            str(config(tmp_path, every, method)),
+            "--out",
+            str(out),
+            "--quiet",
+        ],
+        capture_output=True,
+        text=True,
+        cwd=ROOT,
+        env=ENV,
+    )
     assert killed.returncode == -signal.SIGKILL, killed.stderr
     folder = run_folder(out)
     assert not (folder / "result.json").exists()
@@ -102,8 +123,14 @@ def test_interrupt_saves_a_checkpoint_prints_the_resume_command_and_resumes_exac
     assert whole.returncode == 0, whole.stderr
     expected = contents(run_folder(tmp_path / "whole"))
     out = tmp_path / "out"
-    process = subprocess.Popen([sys.executable, "-m", "optim", "run", str(cfg), "--out", str(out), "--quiet"],
-                               cwd=ROOT, env=ENV, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    process = subprocess.Popen(
+        [sys.executable, "-m", "optim", "run", str(cfg), "--out", str(out), "--quiet"],
+        cwd=ROOT,
+        env=ENV,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
     deadline = time.monotonic() + 60
     while time.monotonic() < deadline:  # wait until a few generations are logged
         logs = list(out.glob("*/log.jsonl")) if out.exists() else []
@@ -138,8 +165,22 @@ def test_checkpoint_from_another_version_is_refused(tmp_path):
     from optim.runs.checkpoint import load_checkpoint, save_checkpoint
 
     out = tmp_path / "out"
-    process = subprocess.run([sys.executable, str(DATA / "killer.py"), "after-log", "3", "--", "run",
-                              str(config(tmp_path)), "--out", str(out), "--quiet"], cwd=ROOT, env=ENV)
+    process = subprocess.run(
+        [
+            sys.executable,
+            str(DATA / "killer.py"),
+            "after-log",
+            "3",
+            "--",
+            "run",
+            str(config(tmp_path)),
+            "--out",
+            str(out),
+            "--quiet",
+        ],
+        cwd=ROOT,
+        env=ENV,
+    )
     assert process.returncode == -signal.SIGKILL
     folder = run_folder(out)
     state, info = load_checkpoint(folder / RunFolder.CHECKPOINT)

@@ -98,28 +98,39 @@ def test_hillclimb_counts_every_tried_neighbour_like_a_sequential_climber():
     sequential = optim.maximize(count_ones, n=20, method="hillclimb", budget=300, target=None, seed=9)
     assert len(calls) == sequential.evaluations == 300
     # vectorised: neighbours are scored in batches but only those a sequential climber tries are counted
-    vectorised = optim.maximize(lambda X: X.sum(axis=1), n=20, vectorized=True, method="hillclimb", budget=300,
-                                target=None, seed=9)
+    vectorised = optim.maximize(
+        lambda X: X.sum(axis=1), n=20, vectorized=True, method="hillclimb", budget=300, target=None, seed=9
+    )
     drop = lambda h: [{k: v for k, v in r.items() if k != "objective_calls"} for r in _strip_timing(h)]
     assert drop(sequential.history) == drop(vectorised.history)
     assert vectorised.objective_calls >= vectorised.evaluations  # the look-ahead is reported, not hidden
 
 
 def test_minimize_is_handled_in_one_place():
-    result = optim.minimize(lambda X: X.sum(axis=1), n=30, vectorized=True, population=100, budget=3000,
-                            target=0, seed=2)
+    result = optim.minimize(
+        lambda X: X.sum(axis=1), n=30, vectorized=True, population=100, budget=3000, target=0, seed=2
+    )
     assert result.best_score == 0
     assert result.best_solution.sum() == 0
     assert result.stop_reason == "target"
 
 
 def test_patience_and_collapse_stop_rules():
-    flat = optim.maximize(lambda X: np.zeros(X.shape[0]), n=10, vectorized=True, population=40, budget=10_000,
-                          patience=3, collapse=False, seed=1)
+    flat = optim.maximize(
+        lambda X: np.zeros(X.shape[0]),
+        n=10,
+        vectorized=True,
+        population=40,
+        budget=10_000,
+        patience=3,
+        collapse=False,
+        seed=1,
+    )
     assert flat.stop_reason == "patience"
     assert flat.generations == 4  # the first generation improves on nothing, then three stale ones
-    collapsing = optim.maximize(lambda X: X.sum(axis=1), n=8, vectorized=True, population=30, prior=0.0,
-                                budget=100_000, target=None, seed=1)
+    collapsing = optim.maximize(
+        lambda X: X.sum(axis=1), n=8, vectorized=True, population=30, prior=0.0, budget=100_000, target=None, seed=1
+    )
     assert collapsing.stop_reason == "collapsed"
 
 
@@ -142,8 +153,9 @@ def test_failures_are_scored_worst_and_counted():
             return float("nan")
         return float(x.sum())
 
-    result = optim.maximize(fragile, n=6, population=20, budget=200, target=None, collapse=False,
-                            max_failures=None, seed=1)
+    result = optim.maximize(
+        fragile, n=6, population=20, budget=200, target=None, collapse=False, max_failures=None, seed=1
+    )
     assert result.failures > 0
     assert not (result.best_solution[0] == 1 and result.best_solution[1] == 1)
     assert result.evaluations == 200

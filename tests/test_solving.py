@@ -26,17 +26,20 @@ SEEDS = (1, 2, 3)
 CASES = [
     ("max-sat", "max-sat", dict(n=40, ratio=3.5, seed=3), 1000, 40_000, "RC2"),
     ("max-cut", "max-cut", dict(n=18, p=0.4, weighted=True, seed=3), 500, 30_000, "enumerat"),
-    ("knapsack", "knapsack", dict(items=30, kind="strongly-correlated", seed=3), 1000, 30_000,
-     "dynamic programming"),
-    ("nk-adjacent", "nk", dict(n=30, k=2, neighbourhood="adjacent", seed=3), 2000, 60_000,
-     "dynamic programming"),
+    ("knapsack", "knapsack", dict(items=30, kind="strongly-correlated", seed=3), 1000, 30_000, "dynamic programming"),
+    ("nk-adjacent", "nk", dict(n=30, k=2, neighbourhood="adjacent", seed=3), 2000, 60_000, "dynamic programming"),
     ("nk-random", "nk", dict(n=16, k=2, neighbourhood="random", seed=3), 500, 20_000, "enumeration"),
     # LPT (in the first population) gives 90 here, the optimum is 84
-    ("machine-index", "machine-assignment", dict(jobs=10, machines=3, low=5, high=40, seed=6), 1000, 20_000,
-     "milp"),
+    ("machine-index", "machine-assignment", dict(jobs=10, machines=3, low=5, high=40, seed=6), 1000, 20_000, "milp"),
     # LPT gives 50 here, the optimum is 47
-    ("machine-bits", "machine-assignment", dict(jobs=10, machines=4, low=5, high=40, encoding="bits", seed=3),
-     1000, 30_000, "milp"),
+    (
+        "machine-bits",
+        "machine-assignment",
+        dict(jobs=10, machines=4, low=5, high=40, encoding="bits", seed=3),
+        1000,
+        30_000,
+        "milp",
+    ),
     ("staff-roster", "staff-roster", dict(people=4, days=3, shifts_per_day=2, seed=3), 2000, 60_000, "milp"),
     ("service-latency", "service-latency", dict(), 500, 20_000, "enumerated"),
 ]
@@ -52,8 +55,7 @@ def _problem(name, params):
 
 
 @pytest.mark.parametrize("seed", SEEDS)
-@pytest.mark.parametrize("label, name, params, population, budget, source",
-                         CASES, ids=[case[0] for case in CASES])
+@pytest.mark.parametrize("label, name, params, population, budget, source", CASES, ids=[case[0] for case in CASES])
 def test_the_tree_reaches_the_reference_optimum(label, name, params, population, budget, source, seed):
     if name == "max-sat":
         pytest.importorskip("pysat", reason="the MAX-SAT reference optimum needs python-sat (RC2)")
@@ -61,8 +63,12 @@ def test_the_tree_reaches_the_reference_optimum(label, name, params, population,
         pytest.importorskip("scipy.optimize", reason="the reference optimum needs scipy's MILP solver")
     problem = _problem(name, params)
     assert problem.optimum is not None and source in problem.optimum_source
-    result = Search(problem, SearchSettings(method="tree", population=population),
-                    StopRules(evaluations=budget, target="optimum"), seed=seed).run()
+    result = Search(
+        problem,
+        SearchSettings(method="tree", population=population),
+        StopRules(evaluations=budget, target="optimum"),
+        seed=seed,
+    ).run()
     assert result.stop_reason == "target", f"{label}: best {result.best_score}, optimum {problem.optimum}"
     assert result.evaluations_to_target <= budget
     np.testing.assert_allclose(problem.evaluate_one(result.best_solution), problem.optimum, rtol=1e-12)
@@ -81,8 +87,9 @@ def _planted_among_strongest_edges(seed):
     problem = objectives.make_problem("service-latency", dict(noise=5.0, seed=seed))
     index = {name: i for i, name in enumerate(problem.variable_names)}
     planted = {frozenset((index[a], index[b])) for a, b, _ in problem.planted_pairs}
-    search = Search(problem, SearchSettings(method="tree", population=1000),
-                    StopRules(evaluations=100_000, target=None), seed=seed)
+    search = Search(
+        problem, SearchSettings(method="tree", population=1000), StopRules(evaluations=100_000, target=None), seed=seed
+    )
     for _ in range(7):  # generation 6: the tree fitted six times to the survivors
         search.step()
     model = search.method.model()

@@ -59,9 +59,7 @@ def test_total_weight_and_edges_match_networkx(n):
         # Continuous random weights are distinct, so the maximum spanning tree is unique.
         upper = weights[np.triu_indices(n, k=1)]
         assert np.unique(upper).size == upper.size
-        assert {frozenset(e) for e in edges_from_parents(parents).tolist()} == {
-            frozenset(e) for e in reference.edges()
-        }
+        assert {frozenset(e) for e in edges_from_parents(parents).tolist()} == {frozenset(e) for e in reference.edges()}
 
 
 @pytest.mark.parametrize("root", [0, 4, 9])
@@ -153,9 +151,7 @@ def test_fast_path_for_nonnegative_weights_matches_networkx(n, dtype):
     _assert_is_tree(parents, order, n // 2)
     np.testing.assert_array_equal(parents, expected[0])
     np.testing.assert_array_equal(order, expected[1])
-    assert {frozenset(e) for e in edges_from_parents(parents).tolist()} == {
-        frozenset(e) for e in reference.edges()
-    }
+    assert {frozenset(e) for e in edges_from_parents(parents).tolist()} == {frozenset(e) for e in reference.edges()}
     public = maximum_spanning_tree(as_float64, root=n // 2)
     np.testing.assert_array_equal(public[0], parents)
     np.testing.assert_array_equal(public[1], order)

@@ -114,9 +114,7 @@ def test_g_test_p_value_matches_scipy_log_likelihood_test():
         product = joint.sum(axis=1, keepdims=True) * joint.sum(axis=0, keepdims=True)
         information = float(np.sum(joint * np.log(joint / product)))
         df = (shape[0] - 1) * (shape[1] - 1)
-        statistic, p_value, dof, _ = scipy.stats.chi2_contingency(
-            table, correction=False, lambda_="log-likelihood"
-        )
+        statistic, p_value, dof, _ = scipy.stats.chi2_contingency(table, correction=False, lambda_="log-likelihood")
         assert dof == df
         assert 2.0 * total * information == pytest.approx(statistic, rel=1e-12)
         assert g_test_p_value(information, total, df) == pytest.approx(p_value, rel=1e-10, abs=1e-14)

@@ -57,13 +57,23 @@ def comparable(store: SweepStore) -> dict:
 
 # -- expansion and seeding --------------------------------------------------------------------------
 def test_a_list_value_expands_into_a_grid_with_labels():
-    config = parse(SMALL.replace("{method: tree, population: 60}",
-                                 "{method: tree, population: [60, 80], select: [0.3, 0.5]}"))
+    config = parse(
+        SMALL.replace("{method: tree, population: 60}", "{method: tree, population: [60, 80], select: [0.3, 0.5]}")
+    )
     labels = [m.label for m in config.methods]
-    assert labels == ["tree population=60 select=0.3", "tree population=60 select=0.5",
-                      "tree population=80 select=0.3", "tree population=80 select=0.5", "hillclimb"]
+    assert labels == [
+        "tree population=60 select=0.3",
+        "tree population=60 select=0.5",
+        "tree population=80 select=0.3",
+        "tree population=80 select=0.5",
+        "hillclimb",
+    ]
     assert [(m.settings.population, m.settings.select) for m in config.methods[:4]] == [
-        (60, 0.3), (60, 0.5), (80, 0.3), (80, 0.5)]
+        (60, 0.3),
+        (60, 0.5),
+        (80, 0.3),
+        (80, 0.5),
+    ]
     assert len(config.jobs) == 2 * 5 * 3
     grid = parse(SMALL.replace("{method: tree, population: 60}", "{method: [tree, univariate], label: eda}"))
     assert [m.label for m in grid.methods] == ["eda tree", "eda univariate", "hillclimb"]
@@ -76,13 +86,15 @@ def test_seeds_are_a_count_or_a_list_of_indices():
 
 def test_job_seeds_depend_on_the_job_identity_only():
     small = parse(SMALL)
-    bigger = parse(SMALL.replace("seeds: 3", "seeds: 5")
-                   .replace("  - {method: tree, population: 60}\n",
-                            "  - {method: univariate, population: 60}\n  - {method: tree, population: 60, "
-                            "label: renamed}\n")
-                   .replace("problems:\n", "problems:\n  - {use: hiff, n: 16}\n"))
-    key = lambda job: (job.problem.spec().__repr__(), json.dumps(job.method.changed(), sort_keys=True),
-                       job.seed_index)
+    bigger = parse(
+        SMALL.replace("seeds: 3", "seeds: 5")
+        .replace(
+            "  - {method: tree, population: 60}\n",
+            "  - {method: univariate, population: 60}\n  - {method: tree, population: 60, label: renamed}\n",
+        )
+        .replace("problems:\n", "problems:\n  - {use: hiff, n: 16}\n")
+    )
+    key = lambda job: (job.problem.spec().__repr__(), json.dumps(job.method.changed(), sort_keys=True), job.seed_index)
     small_jobs = {key(j): j for j in small.jobs}
     bigger_jobs = {key(j): j for j in bigger.jobs}
     assert set(small_jobs) < set(bigger_jobs)
@@ -105,10 +117,11 @@ def test_the_seeding_rule_is_the_documented_one():
     config = parse(SMALL)
     job = config.jobs[0]
     identity = job_identity(job.problem, job.method, job.seed_index)
-    assert identity == ('{"method":{"population":60},"problem":{"k":3,"n":12,"seed":3,"shuffle":true,"use":"trap"},'
-                        '"seed":0}')
+    assert identity == (
+        '{"method":{"population":60},"problem":{"k":3,"n":12,"seed":3,"shuffle":true,"use":"trap"},"seed":0}'
+    )
     digest = hashlib.sha256(identity.encode()).digest()
-    spawn_key = [int.from_bytes(digest[i:i + 4], "little") for i in range(0, 16, 4)]
+    spawn_key = [int.from_bytes(digest[i : i + 4], "little") for i in range(0, 16, 4)]
     sequence = np.random.SeedSequence(entropy=5, spawn_key=spawn_key)
     assert job.job == digest.hex()[:16]
     assert job.run_seed == int(sequence.generate_state(1, np.uint64)[0]) >> 1
@@ -116,8 +129,13 @@ def test_the_seeding_rule_is_the_documented_one():
 
 def test_adding_a_method_and_seeds_leaves_the_other_results_unchanged(tmp_path):
     first = write(tmp_path, SMALL, "first.yaml")
-    second = write(tmp_path, SMALL.replace("seeds: 3", "seeds: 4").replace(
-        "  - {method: hillclimb", "  - {method: univariate, population: 60}\n  - {method: hillclimb"), "second.yaml")
+    second = write(
+        tmp_path,
+        SMALL.replace("seeds: 3", "seeds: 4").replace(
+            "  - {method: hillclimb", "  - {method: univariate, population: 60}\n  - {method: hillclimb"
+        ),
+        "second.yaml",
+    )
     a = run_sweep(load_sweep_config(first), out=tmp_path / "a")
     b = run_sweep(load_sweep_config(second), out=tmp_path / "b")
     a_records, b_records = comparable(a.store), comparable(b.store)
@@ -142,16 +160,27 @@ def test_serial_and_joblib_give_identical_results(tmp_path, serial_reference):
     assert pooled.ran == 12 and len(reference) == 12
     assert comparable(pooled.store) == reference
     record = next(iter(reference.values()))[0]
-    for key in ("job", "problem", "method", "params", "seed", "best_score", "evaluations", "hit_target",
-                "evaluations_to_target"):
+    for key in (
+        "job",
+        "problem",
+        "method",
+        "params",
+        "seed",
+        "best_score",
+        "evaluations",
+        "hit_target",
+        "evaluations_to_target",
+    ):
         assert key in record
 
 
 def test_a_dask_local_cluster_gives_identical_results(tmp_path, serial_reference):
     distributed = pytest.importorskip("distributed")
     config, reference = serial_reference
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) \
-            as cluster, distributed.Client(cluster) as client:
+    with (
+        distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster,
+        distributed.Client(cluster) as client,
+    ):
         on_dask = run_sweep(config, out=tmp_path / "dask", dask=client)
     assert on_dask.ran == 12
     assert comparable(on_dask.store) == reference
@@ -250,25 +279,44 @@ def test_the_bundled_sweeps_are_valid():
 
 
 # -- config errors -------------------------------------------------------------------------------------
-@pytest.mark.parametrize("change, line, key, words", [
-    (("population: 60}\n  - {method: hillclimb", "popualtion: 60}\n  - {method: hillclimb"), 6, "methods.0.popualtion",
-     "did you mean 'population'"),
-    (("{method: tree, population: 60}", "{method: tree,\n     population: [60, 1]}"), 7, "methods.0.population.1",
-     "a whole number >= 2"),
-    (("seeds: 3", "seeds: 0"), 8, "seeds", "a whole number >= 1"),
-    (("seeds: 3", "seeds: [1, 1]"), 8, "seeds.1", "listed twice"),
-    (("{use: onemax, n: 16}", "{use: onemax, m: 16}"), 4, "problems.1.m", "has no parameter 'm'"),
-    (("{use: onemax, n: 16}", "{use: onemax, n: 1e5}"), 4, "problems.1.n", "e-notation"),
-    (("{use: onemax, n: 16}", "{use: onemx, n: 16}"), 4, "problems.1.use", "did you mean 'onemax'"),
-    (("label: trap-12}", "label: onemax}"), 4, "problems.1", "distinct 'label'"),
-    (("{use: onemax, n: 16}", "{use: trap, n: 12, k: 3, shuffle: true, seed: 3}"), 4, "problems.1",
-     "the same problem as 'trap-12'"),
-    (("{method: hillclimb, population: 60}", "{method: tree, population: 60, label: again}"), 7, "methods.1",
-     "are those of 'tree'"),
-    (("evaluations: 1500", "evaluations: 50"), 10, "stop.evaluations", "smaller than one population"),
-    (("seed: 5\n", "sede: 5\n"), 11, "sede", "did you mean 'seed'"),
-    (("{method: hillclimb, population: 60}", "{population: 60}"), 7, "methods.1", "needs a 'method' key"),
-])
+@pytest.mark.parametrize(
+    "change, line, key, words",
+    [
+        (
+            ("population: 60}\n  - {method: hillclimb", "popualtion: 60}\n  - {method: hillclimb"),
+            6,
+            "methods.0.popualtion",
+            "did you mean 'population'",
+        ),
+        (
+            ("{method: tree, population: 60}", "{method: tree,\n     population: [60, 1]}"),
+            7,
+            "methods.0.population.1",
+            "a whole number >= 2",
+        ),
+        (("seeds: 3", "seeds: 0"), 8, "seeds", "a whole number >= 1"),
+        (("seeds: 3", "seeds: [1, 1]"), 8, "seeds.1", "listed twice"),
+        (("{use: onemax, n: 16}", "{use: onemax, m: 16}"), 4, "problems.1.m", "has no parameter 'm'"),
+        (("{use: onemax, n: 16}", "{use: onemax, n: 1e5}"), 4, "problems.1.n", "e-notation"),
+        (("{use: onemax, n: 16}", "{use: onemx, n: 16}"), 4, "problems.1.use", "did you mean 'onemax'"),
+        (("label: trap-12}", "label: onemax}"), 4, "problems.1", "distinct 'label'"),
+        (
+            ("{use: onemax, n: 16}", "{use: trap, n: 12, k: 3, shuffle: true, seed: 3}"),
+            4,
+            "problems.1",
+            "the same problem as 'trap-12'",
+        ),
+        (
+            ("{method: hillclimb, population: 60}", "{method: tree, population: 60, label: again}"),
+            7,
+            "methods.1",
+            "are those of 'tree'",
+        ),
+        (("evaluations: 1500", "evaluations: 50"), 10, "stop.evaluations", "smaller than one population"),
+        (("seed: 5\n", "sede: 5\n"), 11, "sede", "did you mean 'seed'"),
+        (("{method: hillclimb, population: 60}", "{population: 60}"), 7, "methods.1", "needs a 'method' key"),
+    ],
+)
 def test_config_errors_name_the_file_line_and_key(tmp_path, change, line, key, words):
     path = write(tmp_path, SMALL.replace(*change))
     assert SMALL.replace(*change) != SMALL

@@ -19,9 +19,21 @@ from typing import Callable, Dict, Iterable, List, Optional, Sequence, Tuple, Un
 
 import numpy as np
 
-__all__ = ["ProblemSpec", "problem_spec", "Task", "run_task", "run_tasks", "summarise", "fit_exponent",
-           "efficiency_tasks", "population_tasks", "scaling_tasks",
-           "efficiency_section", "population_section", "scaling_section"]
+__all__ = [
+    "ProblemSpec",
+    "problem_spec",
+    "Task",
+    "run_task",
+    "run_tasks",
+    "summarise",
+    "fit_exponent",
+    "efficiency_tasks",
+    "population_tasks",
+    "scaling_tasks",
+    "efficiency_section",
+    "population_section",
+    "scaling_section",
+]
 
 
 @dataclass(frozen=True)
@@ -76,8 +88,12 @@ def run_task(task: Task) -> dict:
     limits = _one_blas_thread()
     try:
         problem = task.spec.build(task.seed)
-        search = Search(problem, SearchSettings(method=task.method, population=task.population),
-                        StopRules(evaluations=task.budget, target="optimum"), seed=task.seed)
+        search = Search(
+            problem,
+            SearchSettings(method=task.method, population=task.population),
+            StopRules(evaluations=task.budget, target="optimum"),
+            seed=task.seed,
+        )
         result = search.run()
     finally:
         if limits is not None:
@@ -98,8 +114,9 @@ def _one_blas_thread():
     return threadpool_limits(limits=1, user_api="blas")
 
 
-def run_tasks(tasks: Iterable[Task], workers: int,
-              progress: Optional[Callable[[int, int], None]] = None) -> Dict[Task, dict]:
+def run_tasks(
+    tasks: Iterable[Task], workers: int, progress: Optional[Callable[[int, int], None]] = None
+) -> Dict[Task, dict]:
     """Run every distinct task once, on ``workers`` processes (``1``: in this process)."""
     unique = list(dict.fromkeys(tasks))
     # the long runs first, so the workers finish together
@@ -147,18 +164,32 @@ def fit_exponent(sizes: Sequence[float], evaluations: Sequence[float]) -> Option
 
 # -- the three sections: their tasks, then their tables ------------------------------------------------------
 def efficiency_tasks(config) -> List[Task]:
-    return [Task(spec, method, config.efficiency_population, seed, config.budget)
-            for spec in config.problems for method in config.methods for seed in range(config.seeds)]
+    return [
+        Task(spec, method, config.efficiency_population, seed, config.budget)
+        for spec in config.problems
+        for method in config.methods
+        for seed in range(config.seeds)
+    ]
 
 
 def efficiency_section(config, results: Dict[Task, dict]) -> List[dict]:
     rows = []
     for spec in config.problems:
         for method in config.methods:
-            outcomes = [results[Task(spec, method, config.efficiency_population, seed, config.budget)]
-                        for seed in range(config.seeds)]
-            rows.append(dict(problem=spec.key, label=spec.label, method=method,
-                             population=config.efficiency_population, budget=config.budget, **summarise(outcomes)))
+            outcomes = [
+                results[Task(spec, method, config.efficiency_population, seed, config.budget)]
+                for seed in range(config.seeds)
+            ]
+            rows.append(
+                dict(
+                    problem=spec.key,
+                    label=spec.label,
+                    method=method,
+                    population=config.efficiency_population,
+                    budget=config.budget,
+                    **summarise(outcomes),
+                )
+            )
     return rows
 
 
@@ -167,15 +198,21 @@ def _population_settings(config) -> List[Union[int, str]]:
 
 
 def population_tasks(config) -> List[Task]:
-    return [Task(spec, "tree", population, seed, config.budget)
-            for spec in config.problems for population in _population_settings(config)
-            for seed in range(config.seeds)]
+    return [
+        Task(spec, "tree", population, seed, config.budget)
+        for spec in config.problems
+        for population in _population_settings(config)
+        for seed in range(config.seeds)
+    ]
 
 
 def _best_fixed(rows: List[dict], seeds: int, reliable: float) -> Optional[dict]:
     """The fixed population with the fewest median evaluations among those reaching the optimum reliably."""
-    fine = [r for r in rows if r["population"] != "auto" and r["median_evaluations"] is not None
-            and r["successes"] >= reliable * seeds]
+    fine = [
+        r
+        for r in rows
+        if r["population"] != "auto" and r["median_evaluations"] is not None and r["successes"] >= reliable * seeds
+    ]
     return min(fine, key=lambda r: r["median_evaluations"]) if fine else None
 
 
@@ -192,13 +229,20 @@ def population_section(config, results: Dict[Task, dict]) -> List[dict]:
         ratio = None
         if best is not None and auto["median_evaluations"] is not None:
             ratio = auto["median_evaluations"] / best["median_evaluations"]
-        section.append({
-            "problem": spec.key, "label": spec.label, "method": "tree", "budget": config.budget, "rows": rows,
-            "best_fixed_population": None if best is None else best["population"],
-            "best_fixed_median": None if best is None else best["median_evaluations"],
-            "auto_successes": auto["successes"], "auto_median": auto["median_evaluations"],
-            "auto_to_best_ratio": ratio,
-        })
+        section.append(
+            {
+                "problem": spec.key,
+                "label": spec.label,
+                "method": "tree",
+                "budget": config.budget,
+                "rows": rows,
+                "best_fixed_population": None if best is None else best["population"],
+                "best_fixed_median": None if best is None else best["median_evaluations"],
+                "auto_successes": auto["successes"],
+                "auto_median": auto["median_evaluations"],
+                "auto_to_best_ratio": ratio,
+            }
+        )
     return section
 
 
@@ -211,9 +255,12 @@ def _scaling_populations(config, n: int) -> List[Union[int, str]]:
 
 
 def scaling_tasks(config) -> List[Task]:
-    return [Task(_scaling_spec(n), "tree", population, seed, config.scaling_budget)
-            for n in config.scaling_sizes for population in _scaling_populations(config, n)
-            for seed in range(config.seeds)]
+    return [
+        Task(_scaling_spec(n), "tree", population, seed, config.scaling_budget)
+        for n in config.scaling_sizes
+        for population in _scaling_populations(config, n)
+        for seed in range(config.seeds)
+    ]
 
 
 def scaling_section(config, results: Dict[Task, dict]) -> dict:
@@ -223,8 +270,9 @@ def scaling_section(config, results: Dict[Task, dict]) -> dict:
         spec = _scaling_spec(n)
         rows = []
         for population in _scaling_populations(config, n):
-            outcomes = [results[Task(spec, "tree", population, seed, config.scaling_budget)]
-                        for seed in range(config.seeds)]
+            outcomes = [
+                results[Task(spec, "tree", population, seed, config.scaling_budget)] for seed in range(config.seeds)
+            ]
             rows.append(dict(population=population, **summarise(outcomes)))
         best = _best_fixed(rows, config.seeds, config.reliable)
         table.append({"n": n, "rows": rows, "auto": rows[-1], "best_fixed": best})
@@ -242,8 +290,12 @@ def scaling_section(config, results: Dict[Task, dict]) -> dict:
         "budget": config.scaling_budget,
         "population_multiples": list(config.scaling_multiples),
         "sizes": table,
-        "exponent_auto": exponent(lambda e: e["auto"]["median_evaluations"]
-                                  if e["auto"]["successes"] >= config.reliable * config.seeds else None),
-        "exponent_best_fixed": exponent(lambda e: None if e["best_fixed"] is None
-                                        else e["best_fixed"]["median_evaluations"]),
+        "exponent_auto": exponent(
+            lambda e: (
+                e["auto"]["median_evaluations"] if e["auto"]["successes"] >= config.reliable * config.seeds else None
+            )
+        ),
+        "exponent_best_fixed": exponent(
+            lambda e: None if e["best_fixed"] is None else e["best_fixed"]["median_evaluations"]
+        ),
     }

@@ -47,8 +47,12 @@ def child_main(arguments: Sequence[str]) -> None:
     from optim_problems.onemax import onemax
 
     baseline = _peak_megabytes()
-    search = Search(onemax(n), SearchSettings(method="tree", population=population),
-                    StopRules(evaluations=10 ** 12, target=None, collapse=False), seed=seed)
+    search = Search(
+        onemax(n),
+        SearchSettings(method="tree", population=population),
+        StopRules(evaluations=10**12, target=None, collapse=False),
+        seed=seed,
+    )
     for _ in range(generations):
         search.step()
     print(json.dumps({"baseline_mb": baseline, "peak_mb": _peak_megabytes(), "evaluations": search.evaluations}))
@@ -64,7 +68,10 @@ def measure_memory(n: int, population: int, generations: int, seed: int = 0, tim
     code = "import sys; from optim.bench.memory import child_main; child_main(sys.argv[1:])"
     completed = subprocess.run(
         [sys.executable, "-c", code, str(n), str(population), str(generations), str(seed)],
-        capture_output=True, text=True, env=env, timeout=timeout,
+        capture_output=True,
+        text=True,
+        env=env,
+        timeout=timeout,
     )
     row = {"n": n, "population": population, "generations": generations, "method": MEMORY_METHOD}
     if completed.returncode != 0:
@@ -72,6 +79,10 @@ def measure_memory(n: int, population: int, generations: int, seed: int = 0, tim
         row["error"] = f"the child process failed (status {completed.returncode}): {last}"
         return row
     figures = json.loads(completed.stdout.strip().splitlines()[-1])
-    row.update(peak_mb=figures["peak_mb"], baseline_mb=figures["baseline_mb"],
-               run_mb=figures["peak_mb"] - figures["baseline_mb"], evaluations=figures["evaluations"])
+    row.update(
+        peak_mb=figures["peak_mb"],
+        baseline_mb=figures["baseline_mb"],
+        run_mb=figures["peak_mb"] - figures["baseline_mb"],
+        evaluations=figures["evaluations"],
+    )
     return row

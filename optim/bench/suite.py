@@ -74,7 +74,8 @@ class BenchConfig:
     reliable: float = 0.9
     workers: int = 2
     sections: Tuple[str, ...] = field(
-        default=("fit", "sampling", "generation", "memory", "throughput", "efficiency", "population", "scaling"))
+        default=("fit", "sampling", "generation", "memory", "throughput", "efficiency", "population", "scaling")
+    )
 
     def to_dict(self) -> dict:
         data = dataclasses.asdict(self)
@@ -87,10 +88,21 @@ FULL = BenchConfig()
 
 #: Small sizes and three seeds: a few minutes on two cores (what CI runs).
 QUICK = BenchConfig(
-    mode="quick", fit_sizes=(100, 500), repeats=9, timing_seconds=2.0,
-    generation_n=300, generation_population=1200, generation_count=2,
-    memory_n=500, memory_population=2000, memory_generations=2, seeds=3, budget=50_000,
-    scaling_sizes=(30, 60, 120), scaling_multiples=(4.0, 5.66, 8.0, 11.31, 16.0), scaling_budget=200_000,
+    mode="quick",
+    fit_sizes=(100, 500),
+    repeats=9,
+    timing_seconds=2.0,
+    generation_n=300,
+    generation_population=1200,
+    generation_count=2,
+    memory_n=500,
+    memory_population=2000,
+    memory_generations=2,
+    seeds=3,
+    budget=50_000,
+    scaling_sizes=(30, 60, 120),
+    scaling_multiples=(4.0, 5.66, 8.0, 11.31, 16.0),
+    scaling_budget=200_000,
 )
 
 
@@ -116,21 +128,25 @@ def run_bench(config: BenchConfig = FULL, log: Optional[Callable[[str], None]] =
     sections = set(config.sections)
     if "fit" in sections:
         say("bench: model fit")
-        report["fit"] = bench_timing.measure_fit(config.fit_sizes, config.samples_per_variable, config.repeats,
-                                                 config.timing_seconds)
+        report["fit"] = bench_timing.measure_fit(
+            config.fit_sizes, config.samples_per_variable, config.repeats, config.timing_seconds
+        )
     if "sampling" in sections:
         say("bench: sampling")
-        report["sampling"] = bench_timing.measure_sampling(config.fit_sizes, config.samples_per_variable,
-                                                           config.repeats, config.timing_seconds)
+        report["sampling"] = bench_timing.measure_sampling(
+            config.fit_sizes, config.samples_per_variable, config.repeats, config.timing_seconds
+        )
     if "generation" in sections:
         say("bench: one generation")
-        report["generation"] = bench_timing.measure_generation(config.generation_n, config.generation_population,
-                                                               config.generation_count)
+        report["generation"] = bench_timing.measure_generation(
+            config.generation_n, config.generation_population, config.generation_count
+        )
     report["machine"]["load_average_after_timing"] = bench_timing.load_average()
     if "memory" in sections:
         say("bench: peak memory (child process)")
-        report["memory"] = bench_memory.measure_memory(config.memory_n, config.memory_population,
-                                                       config.memory_generations)
+        report["memory"] = bench_memory.measure_memory(
+            config.memory_n, config.memory_population, config.memory_generations
+        )
     if "throughput" in sections:
         from optim.bench.throughput import throughput_benchmark
 

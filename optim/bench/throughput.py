@@ -115,9 +115,11 @@ def format_throughput(result: dict) -> str:
         "| --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: |",
     ]
     for row in result["rows"]:
-        lines.append(f"| {row['mode']} | {row['workers']} | {row['evaluations']} | {row['seconds']:.3f} "
-                     f"| {row['per_second']:.1f} | {row['ideal_per_second']:.1f} | {row['overhead_ms']:.2f} "
-                     f"| {row['startup_seconds']:.2f} |")
+        lines.append(
+            f"| {row['mode']} | {row['workers']} | {row['evaluations']} | {row['seconds']:.3f} "
+            f"| {row['per_second']:.1f} | {row['ideal_per_second']:.1f} | {row['overhead_ms']:.2f} "
+            f"| {row['startup_seconds']:.2f} |"
+        )
     for row in result.get("skipped", []):
         lines.append(f"| {row['mode']} | – | – | – | – | – | – | skipped: {row['why']} |")
     lines += ["", "ideal = workers / sleep time; overhead = measured seconds per evaluation − sleep time / workers."]

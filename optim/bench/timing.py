@@ -19,8 +19,16 @@ from typing import Callable, Dict, List, Optional, Sequence
 
 import numpy as np
 
-__all__ = ["time_ratio", "time_ratios", "measure_fit", "measure_sampling", "measure_generation", "machine_info",
-           "blas_info", "load_average"]
+__all__ = [
+    "time_ratio",
+    "time_ratios",
+    "measure_fit",
+    "measure_sampling",
+    "measure_generation",
+    "machine_info",
+    "blas_info",
+    "load_average",
+]
 
 
 def _seconds(operation: Callable[[], object]) -> float:
@@ -29,8 +37,13 @@ def _seconds(operation: Callable[[], object]) -> float:
     return time.perf_counter() - start
 
 
-def time_ratios(reference: Callable[[], object], candidates: Dict[str, Callable[[], object]],
-                repeats: int, min_seconds: float = 0.0, max_repeats: int = 1000) -> Dict[str, Dict[str, float]]:
+def time_ratios(
+    reference: Callable[[], object],
+    candidates: Dict[str, Callable[[], object]],
+    repeats: int,
+    min_seconds: float = 0.0,
+    max_repeats: int = 1000,
+) -> Dict[str, Dict[str, float]]:
     """Time each candidate against ``reference``, all interleaved, ``repeats`` times each or more.
 
     Every repetition times the reference and every candidate once, in an order
@@ -81,8 +94,9 @@ def time_ratios(reference: Callable[[], object], candidates: Dict[str, Callable[
     }
 
 
-def time_ratio(candidate: Callable[[], object], reference: Callable[[], object], repeats: int,
-               min_seconds: float = 0.0) -> Dict[str, float]:
+def time_ratio(
+    candidate: Callable[[], object], reference: Callable[[], object], repeats: int, min_seconds: float = 0.0
+) -> Dict[str, float]:
     """:func:`time_ratios` for one candidate."""
     return time_ratios(reference, {"candidate": candidate}, repeats, min_seconds)["candidate"]
 
@@ -91,8 +105,9 @@ def _binary_sample(n: int, samples: int, seed: int) -> np.ndarray:
     return (np.random.default_rng(seed).random((samples, n)) < 0.5).astype(np.uint8)
 
 
-def measure_fit(sizes: Sequence[int], samples_per_variable: int, repeats: int, min_seconds: float = 0.0,
-                seed: int = 0) -> List[dict]:
+def measure_fit(
+    sizes: Sequence[int], samples_per_variable: int, repeats: int, min_seconds: float = 0.0, seed: int = 0
+) -> List[dict]:
     """Model fitting against the bare float32 product ``X.T @ X`` of the same shape.
 
     For each ``n``: uniformly random binary data with ``N = samples_per_variable · n``
@@ -111,28 +126,31 @@ def measure_fit(sizes: Sequence[int], samples_per_variable: int, repeats: int, m
         model = DependencyTree(prior=1.0)
         timing = time_ratios(
             lambda: F.T @ F,
-            {"structure": lambda: maximum_spanning_tree(mutual_information(X, prior=1.0)),
-             "fit": lambda: model.fit(X)},
-            repeats, min_seconds,
+            {"structure": lambda: maximum_spanning_tree(mutual_information(X, prior=1.0)), "fit": lambda: model.fit(X)},
+            repeats,
+            min_seconds,
         )
         information_tree, whole_fit = timing["structure"], timing["fit"]
-        rows.append({
-            "n": n,
-            "samples": N,
-            "product_seconds": whole_fit["reference_seconds"],
-            "information_tree_seconds": information_tree["candidate_seconds"],
-            "information_tree_ratio": information_tree["ratio"],
-            "information_tree_median_ratio": information_tree["median_ratio"],
-            "fit_seconds": whole_fit["candidate_seconds"],
-            "fit_ratio": whole_fit["ratio"],
-            "fit_median_ratio": whole_fit["median_ratio"],
-            "repeats": whole_fit["repeats"],
-        })
+        rows.append(
+            {
+                "n": n,
+                "samples": N,
+                "product_seconds": whole_fit["reference_seconds"],
+                "information_tree_seconds": information_tree["candidate_seconds"],
+                "information_tree_ratio": information_tree["ratio"],
+                "information_tree_median_ratio": information_tree["median_ratio"],
+                "fit_seconds": whole_fit["candidate_seconds"],
+                "fit_ratio": whole_fit["ratio"],
+                "fit_median_ratio": whole_fit["median_ratio"],
+                "repeats": whole_fit["repeats"],
+            }
+        )
     return rows
 
 
-def measure_sampling(sizes: Sequence[int], samples_per_variable: int, repeats: int, min_seconds: float = 0.0,
-                     seed: int = 0) -> List[dict]:
+def measure_sampling(
+    sizes: Sequence[int], samples_per_variable: int, repeats: int, min_seconds: float = 0.0, seed: int = 0
+) -> List[dict]:
     """Drawing ``N`` candidates from a fitted tree against ``rng.random((N, n))``.
 
     The tree is fitted to uniformly random binary data of the same shape.
@@ -146,16 +164,18 @@ def measure_sampling(sizes: Sequence[int], samples_per_variable: int, repeats: i
         rng = np.random.default_rng(seed)
         timing = time_ratio(lambda: model.sample(N, rng), lambda: rng.random((N, n)), repeats, min_seconds)
         depth = _tree_depth(model)
-        rows.append({
-            "n": n,
-            "samples": N,
-            "tree_depth": depth,
-            "uniform_seconds": timing["reference_seconds"],
-            "sample_seconds": timing["candidate_seconds"],
-            "ratio": timing["ratio"],
-            "median_ratio": timing["median_ratio"],
-            "repeats": timing["repeats"],
-        })
+        rows.append(
+            {
+                "n": n,
+                "samples": N,
+                "tree_depth": depth,
+                "uniform_seconds": timing["reference_seconds"],
+                "sample_seconds": timing["candidate_seconds"],
+                "ratio": timing["ratio"],
+                "median_ratio": timing["median_ratio"],
+                "repeats": timing["repeats"],
+            }
+        )
     return rows
 
 
@@ -180,8 +200,12 @@ def measure_generation(n: int, population: int, generations: int, seed: int = 0)
     from optim_problems.onemax import onemax
 
     problem = onemax(n)
-    search = Search(problem, SearchSettings(method="tree", population=population),
-                    StopRules(evaluations=10 ** 12, target=None, collapse=False), seed=seed)
+    search = Search(
+        problem,
+        SearchSettings(method="tree", population=population),
+        StopRules(evaluations=10**12, target=None, collapse=False),
+        seed=seed,
+    )
     search.step()
     parts: Dict[str, List[float]] = {"fit": [], "sample": [], "evaluate": [], "bookkeeping": [], "step": []}
     for _ in range(int(generations)):
@@ -189,8 +213,9 @@ def measure_generation(n: int, population: int, generations: int, seed: int = 0)
         timing = search.history[-1]["time"]
         for key in ("fit", "sample", "evaluate"):
             parts[key].append(float(timing.get(key, 0.0)))
-        parts["bookkeeping"].append(max(wall - sum(float(timing.get(k, 0.0)) for k in ("fit", "sample", "evaluate")),
-                                        0.0))
+        parts["bookkeeping"].append(
+            max(wall - sum(float(timing.get(k, 0.0)) for k in ("fit", "sample", "evaluate")), 0.0)
+        )
         parts["step"].append(wall)
     seconds = {key: median(values) for key, values in parts.items()}
     return {
@@ -237,4 +262,3 @@ def machine_info() -> dict:
         "blas": pools,
         "blas_note": None if pools else "install threadpoolctl to see which BLAS numpy uses and its threads",
     }
-

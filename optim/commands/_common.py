@@ -68,18 +68,25 @@ def print_run_summary(outcome) -> None:
 
     result, problem = outcome.result, outcome.problem
     reason = STOP_REASONS.get(result.stop_reason, result.stop_reason)
-    print(f"best score   {result.best_score:.10g}  ({problem.goal}; stopped because it {reason})"
-          if result.stop_reason in ("target", "budget") else
-          f"best score   {result.best_score:.10g}  ({problem.goal}; stopped: {reason})")
+    print(
+        f"best score   {result.best_score:.10g}  ({problem.goal}; stopped because it {reason})"
+        if result.stop_reason in ("target", "budget")
+        else f"best score   {result.best_score:.10g}  ({problem.goal}; stopped: {reason})"
+    )
     if problem.optimum is not None:
         print(f"optimum      {problem.optimum:.10g}  ({problem.optimum_source or 'known'})")
     start = _first_start_score(outcome)
     if start is not None:
         print(f"vs start     {_compare_with_start(result.best_score, start, problem.goal)}")
     print(f"solution     {result.solution_text}")
-    print(f"evaluations  {result.evaluations:,} in {result.generations} generations"
-          + (f", target first reached at {result.evaluations_to_target:,}"
-             if result.evaluations_to_target is not None else ""))
+    print(
+        f"evaluations  {result.evaluations:,} in {result.generations} generations"
+        + (
+            f", target first reached at {result.evaluations_to_target:,}"
+            if result.evaluations_to_target is not None
+            else ""
+        )
+    )
     if result.failures:
         print(f"failures     {result.failures} (see failures.jsonl)")
     print(f"run folder   {outcome.folder.path}")

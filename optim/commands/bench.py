@@ -19,11 +19,12 @@ def _cmd_bench(args) -> int:
 
 def register(commands) -> None:
     bench = commands.add_parser(
-        "bench", help="measure the tool's speed and sample efficiency and check its targets",
+        "bench",
+        help="measure the tool's speed and sample efficiency and check its targets",
         description="Measure model fitting and sampling against bare numpy operations, one generation, peak "
-                    "memory, and the evaluations each method needs to reach the optimum of benchmark problems; "
-                    "write bench.json and bench.md and print the tables. The full run takes long; --quick "
-                    "uses small sizes and three seeds (a few minutes).",
+        "memory, and the evaluations each method needs to reach the optimum of benchmark problems; "
+        "write bench.json and bench.md and print the tables. The full run takes long; --quick "
+        "uses small sizes and three seeds (a few minutes).",
     )
     bench.add_argument("--quick", action="store_true", help="small sizes and three seeds (a few minutes)")
     bench.add_argument("--out", default="runs/bench", help="folder for bench.json and bench.md (default: runs/bench)")

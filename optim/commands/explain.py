@@ -43,17 +43,27 @@ def _cmd_explain(args) -> int:
 
 def register(commands) -> None:
     explain = commands.add_parser(
-        "explain", help="what a run learned: important settings, interacting pairs, how sure",
+        "explain",
+        help="what a run learned: important settings, interacting pairs, how sure",
         description="Read a finished (or stopped) run folder and report which settings the best candidates "
-                    "agree on, which pairs of settings act together, and how sure that is. Writes explain.md, "
-                    "explain.json and (with matplotlib) tree.png, interactions.png and convergence.png into the "
-                    "run folder, and prints a short form. The objective is never run again.",
+        "agree on, which pairs of settings act together, and how sure that is. Writes explain.md, "
+        "explain.json and (with matplotlib) tree.png, interactions.png and convergence.png into the "
+        "run folder, and prints a short form. The objective is never run again.",
     )
     explain.add_argument("run_dir", metavar="RUN_DIR", help="the run folder (made by optim run)")
-    explain.add_argument("--top", type=_positive, default=10, metavar="K",
-                         help="settings and pairs in the printed summary and the report's tables (default 10)")
-    explain.add_argument("--format", choices=("md", "json"), default="md",
-                         help="what to print: the short text form (md, default) or the full JSON document; "
-                              "both files are written either way")
+    explain.add_argument(
+        "--top",
+        type=_positive,
+        default=10,
+        metavar="K",
+        help="settings and pairs in the printed summary and the report's tables (default 10)",
+    )
+    explain.add_argument(
+        "--format",
+        choices=("md", "json"),
+        default="md",
+        help="what to print: the short text form (md, default) or the full JSON document; "
+        "both files are written either way",
+    )
     explain.add_argument("--no-pictures", action="store_true", help="do not draw the pictures")
     explain.set_defaults(handler=_cmd_explain)

@@ -23,9 +23,10 @@ def _cmd_resume(args) -> int:
 
 def register(commands) -> None:
     parser = commands.add_parser(
-        "resume", help="continue a stopped run from its last checkpoint",
+        "resume",
+        help="continue a stopped run from its last checkpoint",
         description="Continue a stopped run (Ctrl-C, SIGTERM, a crash) from its last checkpoint. The resumed run's "
-                    "log and result are those an uninterrupted run would have written.",
+        "log and result are those an uninterrupted run would have written.",
         epilog=CAUTION,
     )
     parser.add_argument("run_dir", help="the run folder (printed when the run started and when it stopped)")

@@ -36,18 +36,31 @@ def _cmd_run(args) -> int:
 
 def register(commands) -> None:
     run = commands.add_parser(
-        "run", help="run one search from a YAML config", description="Run one search from a YAML run config.",
+        "run",
+        help="run one search from a YAML config",
+        description="Run one search from a YAML run config.",
         epilog=CAUTION,
     )
     run.add_argument("config", help="the run config (YAML)")
     run.add_argument("--seed", type=int, help="override the config's seed")
     run.add_argument("--out", help="override the output folder (default: the config's 'out', else runs/)")
-    run.add_argument("--set", action="append", metavar="KEY=VALUE",
-                     help="override one config value, e.g. --set search.population=800 (repeatable)")
-    run.add_argument("--jobs", type=int, metavar="N",
-                     help="evaluate per-candidate objectives in N parallel workers (sets search.jobs)")
-    run.add_argument("--dask", metavar="ADDRESS|local",
-                     help="evaluate on a Dask cluster: a scheduler address, or 'local' for a local cluster "
-                          "started for this run (sets search.dask)")
+    run.add_argument(
+        "--set",
+        action="append",
+        metavar="KEY=VALUE",
+        help="override one config value, e.g. --set search.population=800 (repeatable)",
+    )
+    run.add_argument(
+        "--jobs",
+        type=int,
+        metavar="N",
+        help="evaluate per-candidate objectives in N parallel workers (sets search.jobs)",
+    )
+    run.add_argument(
+        "--dask",
+        metavar="ADDRESS|local",
+        help="evaluate on a Dask cluster: a scheduler address, or 'local' for a local cluster "
+        "started for this run (sets search.dask)",
+    )
     run.add_argument("--quiet", action="store_true", help="no progress line")
     run.set_defaults(handler=_cmd_run)

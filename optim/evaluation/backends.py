@@ -68,8 +68,10 @@ WORKER_WAIT = 60.0
 
 _CRASH = "the worker process died while evaluating this candidate (evaluated again alone, it died again){}"
 _TIMEOUT = "the evaluation did not finish within search.timeout = {:g} s; its worker process was stopped"
-_LOST = ("lost the connection to the Dask scheduler at {}; start it again (dask scheduler) and resume the run "
-         "from its checkpoint")
+_LOST = (
+    "lost the connection to the Dask scheduler at {}; start it again (dask scheduler) and resume the run "
+    "from its checkpoint"
+)
 
 
 class WorkerError(OptimError):
@@ -160,9 +162,11 @@ def ship_problem(problem: Problem) -> bytes:
     try:
         return cloudpickle.dumps(problem)
     except Exception as exc:
-        raise WorkerError(f"the objective {problem.name!r} cannot be sent to worker processes "
-                          f"({_first_line(exc)}); run it with search.jobs: 1 and no search.timeout, "
-                          f"or make it picklable") from None
+        raise WorkerError(
+            f"the objective {problem.name!r} cannot be sent to worker processes "
+            f"({_first_line(exc)}); run it with search.jobs: 1 and no search.timeout, "
+            f"or make it picklable"
+        ) from None
     finally:
         for module in modules:
             cloudpickle.unregister_pickle_by_value(module)
@@ -179,7 +183,7 @@ class _Task:
     def suspects(self) -> list:
         """What to try after this task's worker died: its candidates one per task, then each of those alone."""
         if self.rows.size > 1:
-            return [_Task(self.rows[i:i + 1]) for i in range(self.rows.size)]
+            return [_Task(self.rows[i : i + 1]) for i in range(self.rows.size)]
         return [_Task(self.rows, solo=True)]
 
 
@@ -248,7 +252,8 @@ class ThreadBackend:
 
         chunks = np.array_split(np.arange(X.shape[0]), min(X.shape[0], self.workers * 4))
         parts = Parallel(n_jobs=self.workers, backend="threading")(
-            delayed(score_candidates)(self.problem, X[c]) for c in chunks)
+            delayed(score_candidates)(self.problem, X[c]) for c in chunks
+        )
         return [outcome for part in parts for outcome in part]
 
     def close(self) -> None:
@@ -290,8 +295,9 @@ class ProcessBackend:
     def _start(self) -> None:
         from joblib.externals.loky import ProcessPoolExecutor
 
-        self._executor = ProcessPoolExecutor(max_workers=self.workers, initializer=_install,
-                                             initargs=(self.token, self._payload))
+        self._executor = ProcessPoolExecutor(
+            max_workers=self.workers, initializer=_install, initargs=(self.token, self._payload)
+        )
         self._broken = False
         if self.timeout is not None:
             self._warm_up()
@@ -367,8 +373,9 @@ def _import_distributed():
     try:
         import distributed
     except ImportError:
-        raise WorkerError("running on Dask needs dask and distributed; install them with "
-                          "pip install 'optim[cluster]'") from None
+        raise WorkerError(
+            "running on Dask needs dask and distributed; install them with pip install 'optim[cluster]'"
+        ) from None
     return distributed
 
 
@@ -442,7 +449,8 @@ class DaskBackend:
                 except (OSError, *_timeout_errors()) as exc:
                     raise ClusterUnavailable(
                         f"cannot reach the Dask scheduler at {address!r} ({_first_line(exc)}); start one with "
-                        f"`dask scheduler` and workers with `dask worker ADDRESS`, or use --dask local") from None
+                        f"`dask scheduler` and workers with `dask worker ADDRESS`, or use --dask local"
+                    ) from None
                 self._own_client = True
             self.address = self._client.scheduler.address
             self._plugin = f"optim-objective-{self.token}"
@@ -458,9 +466,13 @@ class DaskBackend:
         # a worker that dies fails its task at once (the default retries it on three more workers); no dashboard,
         # and the scheduler's small HTTP server (health, metrics) on a free local port instead of 0.0.0.0:8787
         with dask.config.set({"distributed.scheduler.allowed-failures": 0}):
-            return distributed.LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
-                                            dashboard_address=None,
-                                            scheduler_kwargs={"dashboard_address": "127.0.0.1:0"})
+            return distributed.LocalCluster(
+                n_workers=workers,
+                threads_per_worker=1,
+                processes=True,
+                dashboard_address=None,
+                scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
+            )
 
     def score(self, X: np.ndarray) -> list:
         self._capacity = 0
@@ -497,8 +509,9 @@ class DaskBackend:
                     self._client.wait_for_workers(1, timeout=WORKER_WAIT)
                     threads = sum(self._client.nthreads().values())
             except _timeout_errors():
-                raise ClusterUnavailable(f"the Dask cluster at {self.address} has no workers; start some with "
-                                         f"`dask worker {self.address}`") from None
+                raise ClusterUnavailable(
+                    f"the Dask cluster at {self.address} has no workers; start some with `dask worker {self.address}`"
+                ) from None
         self._capacity = max(1, threads)
         return self._capacity
 
@@ -533,8 +546,10 @@ class DaskBackend:
             return "crash", ""
         if isinstance(exc, _ObjectiveUnavailable):
             raise WorkerError(f"the Dask workers cannot load the objective: {exc}")
-        raise WorkerError(f"a Dask worker failed outside the objective: {_first_line(exc)} (is the same version "
-                          f"of optim installed on the workers?)")
+        raise WorkerError(
+            f"a Dask worker failed outside the objective: {_first_line(exc)} (is the same version "
+            f"of optim installed on the workers?)"
+        )
 
     def kill(self, expired, unfinished) -> None:
         keys = {f.key for f in expired}

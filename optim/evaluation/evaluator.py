@@ -118,8 +118,11 @@ def _as_score(value):
         except (TypeError, ValueError):
             return math.nan, "type", f"the objective returned a {type(value).__name__} that is not made of numbers"
         if array.size != 1:
-            return (math.nan, "shape",
-                    f"the objective returned a {type(value).__name__} of shape {array.shape}; expected one number")
+            return (
+                math.nan,
+                "shape",
+                f"the objective returned a {type(value).__name__} of shape {array.shape}; expected one number",
+            )
         number = float(array.reshape(-1)[0])
     elif isinstance(value, numbers.Real) or hasattr(type(value), "__float__"):
         try:

@@ -136,8 +136,9 @@ def pair_p_value(mutual_information, fitted_on, df) -> np.ndarray:
     return chi2_sf(g, df)
 
 
-def best_candidates(scores: np.ndarray, goal: str, fraction: float = BEST_FRACTION,
-                    minimum: int = BEST_MINIMUM) -> np.ndarray:
+def best_candidates(
+    scores: np.ndarray, goal: str, fraction: float = BEST_FRACTION, minimum: int = BEST_MINIMUM
+) -> np.ndarray:
     """Indices of the best ``max(minimum, ceil(fraction · count))`` scores (all if fewer), best first.
 
     Ties keep evaluation order (a stable sort). ``scores`` must be finite.
@@ -231,8 +232,9 @@ def main_effects(indicator: np.ndarray, scores: np.ndarray, strata: Optional[np.
     return MainEffects(effect, se, with_count.astype(np.int64), without_count.astype(np.int64))
 
 
-def adjusted_effects(indicator: np.ndarray, scores: np.ndarray,
-                     strata: Optional[np.ndarray] = None) -> Tuple[np.ndarray, np.ndarray]:
+def adjusted_effects(
+    indicator: np.ndarray, scores: np.ndarray, strata: Optional[np.ndarray] = None
+) -> Tuple[np.ndarray, np.ndarray]:
     """Effect of each indicator column *holding the other columns fixed*, with standard errors.
 
     The least-squares coefficients of the scores on all indicator columns at
@@ -313,8 +315,7 @@ class Contrasts:
         return self.cell_counts.min(axis=0)
 
 
-def interaction_contrasts(indicator: np.ndarray, scores: np.ndarray,
-                          strata: Optional[np.ndarray] = None) -> Contrasts:
+def interaction_contrasts(indicator: np.ndarray, scores: np.ndarray, strata: Optional[np.ndarray] = None) -> Contrasts:
     """2×2 interaction contrasts ``mean(11) − mean(10) − mean(01) + mean(00)`` for all pairs at once.
 
     The counting trick: with ``A`` the indicator matrix as floats and ``s``
@@ -347,9 +348,11 @@ def interaction_contrasts(indicator: np.ndarray, scores: np.ndarray,
             "11": (c11, S11, Q11),
             "10": (c[:, None] - c11, S[:, None] - S11, Q[:, None] - Q11),
             "01": (c[None, :] - c11, S[None, :] - S11, Q[None, :] - Q11),
-            "00": (rows.shape[0] - c[:, None] - c[None, :] + c11,
-                   s.sum() - S[:, None] - S[None, :] + S11,
-                   s2.sum() - Q[:, None] - Q[None, :] + Q11),
+            "00": (
+                rows.shape[0] - c[:, None] - c[None, :] + c11,
+                s.sum() - S[:, None] - S[None, :] + S11,
+                s2.sum() - Q[:, None] - Q[None, :] + Q11,
+            ),
         }
         stats = {key: _cell_statistics(*value) + (value[0],) for key, value in cells.items()}
         ok = np.logical_and.reduce([stats[key][2] >= 2 for key in stats])
@@ -373,9 +376,13 @@ def interaction_contrasts(indicator: np.ndarray, scores: np.ndarray,
         pooled = lambda total: np.where(valid, total / weight, np.nan)  # noqa: E731
         spread = lambda total: np.where(valid, np.sqrt(total) / weight, np.nan)  # noqa: E731
         return Contrasts(
-            contrast=pooled(contrast), se=spread(variance),
-            only_a=pooled(sums["10"]), only_b=pooled(sums["01"]), both=pooled(sums["11"]),
-            se_only_a=spread(variances["10"]), se_only_b=spread(variances["01"]),
+            contrast=pooled(contrast),
+            se=spread(variance),
+            only_a=pooled(sums["10"]),
+            only_b=pooled(sums["01"]),
+            both=pooled(sums["11"]),
+            se_only_a=spread(variances["10"]),
+            se_only_b=spread(variances["01"]),
             se_both=spread(variances["11"]),
             cell_counts=np.where(valid[None], counts, 0.0).astype(np.int64),
         )
@@ -399,8 +406,17 @@ def family_threshold(tests: int, level: float = 1 - _CONFIDENCE) -> float:
     return NormalDist().inv_cdf(1 - level / (2 * max(1, int(tests))))
 
 
-def classify_pair(only_a: float, only_b: float, both: float, se_only_a: float, se_only_b: float,
-                  contrast: float, se: float, goal: str, threshold: float = _Z) -> PairShape:
+def classify_pair(
+    only_a: float,
+    only_b: float,
+    both: float,
+    se_only_a: float,
+    se_only_b: float,
+    contrast: float,
+    se: float,
+    goal: str,
+    threshold: float = _Z,
+) -> PairShape:
     """Name the shape of a pair's interaction from its cells relative to (0, 0).
 
     The cells become *gains* in the goal's direction (negated for
@@ -519,16 +535,26 @@ def _read_trees(path: Path, n: int) -> List[dict]:
     records = []
     for number, record in read_jsonl(path, with_lines=True):
         where = f"{path}:{number}"
-        if not isinstance(record, dict) or not isinstance(record.get("generation"), int) \
-                or not isinstance(record.get("edges"), list):
-            raise RunFolderError(f"{where}: expected an object with 'generation' (a whole number) and "
-                                 f"'edges' (a list of [parent, child, mutual information])")
+        if (
+            not isinstance(record, dict)
+            or not isinstance(record.get("generation"), int)
+            or not isinstance(record.get("edges"), list)
+        ):
+            raise RunFolderError(
+                f"{where}: expected an object with 'generation' (a whole number) and "
+                f"'edges' (a list of [parent, child, mutual information])"
+            )
         for edge in record["edges"]:
-            if (not isinstance(edge, list) or len(edge) != 3
-                    or not all(isinstance(v, int) and 0 <= v < n for v in edge[:2])
-                    or not isinstance(edge[2], (int, float))):
-                raise RunFolderError(f"{where}: expected each edge as [parent, child, mutual information] "
-                                     f"with variable indices 0..{n - 1}; found {edge!r}")
+            if (
+                not isinstance(edge, list)
+                or len(edge) != 3
+                or not all(isinstance(v, int) and 0 <= v < n for v in edge[:2])
+                or not isinstance(edge[2], (int, float))
+            ):
+                raise RunFolderError(
+                    f"{where}: expected each edge as [parent, child, mutual information] "
+                    f"with variable indices 0..{n - 1}; found {edge!r}"
+                )
         fitted_on = record.get("fitted_on")
         if fitted_on is not None and (not isinstance(fitted_on, int) or fitted_on < 1):
             raise RunFolderError(f"{where}: 'fitted_on' must be a positive whole number; found {fitted_on!r}")
@@ -569,13 +595,20 @@ def load_run(run_dir) -> RunData:
     if evaluated is None:
         raise RunFolderError(
             f"{path}: incomplete run folder: no evaluated candidates ({RunFolder.EVALUATED}); "
-            f"explain needs a run that finished or was stopped")
+            f"explain needs a run that finished or was stopped"
+        )
     candidates, scores, generation = evaluated
-    if candidates.ndim != 2 or not np.issubdtype(candidates.dtype, np.integer) \
-            or scores.shape != (candidates.shape[0],) or generation.shape != (candidates.shape[0],):
-        raise RunFolderError(f"{folder.file(RunFolder.EVALUATED)}: expected candidates (count, n) of whole "
-                             f"numbers with one score and one generation each; found shapes "
-                             f"{candidates.shape}, {scores.shape}, {generation.shape}")
+    if (
+        candidates.ndim != 2
+        or not np.issubdtype(candidates.dtype, np.integer)
+        or scores.shape != (candidates.shape[0],)
+        or generation.shape != (candidates.shape[0],)
+    ):
+        raise RunFolderError(
+            f"{folder.file(RunFolder.EVALUATED)}: expected candidates (count, n) of whole "
+            f"numbers with one score and one generation each; found shapes "
+            f"{candidates.shape}, {scores.shape}, {generation.shape}"
+        )
     if candidates.shape[0] == 0:
         raise RunFolderError(f"{path}: the run evaluated no candidates; there is nothing to explain")
     n = candidates.shape[1]
@@ -587,8 +620,9 @@ def load_run(run_dir) -> RunData:
         raise RunFolderError(f"{path}: result.json names {len(names)} variables but the candidates have {n}")
     goal = described.get("goal") or (config.get("problem") or {}).get("goal")
     if goal not in ("maximize", "minimize"):
-        raise RunFolderError(f"{path}: cannot tell whether the run maximised or minimised (no problem goal in "
-                             f"run.json or config.yaml)")
+        raise RunFolderError(
+            f"{path}: cannot tell whether the run maximised or minimised (no problem goal in run.json or config.yaml)"
+        )
     card = described.get("cardinality")
     if isinstance(card, int):
         cardinality = np.full(n, card, dtype=np.int64)
@@ -597,8 +631,7 @@ def load_run(run_dir) -> RunData:
     else:
         cardinality = np.maximum(candidates.max(axis=0).astype(np.int64) + 1, 2)
     if np.any(candidates.max(axis=0) >= cardinality) or candidates.min() < 0:
-        raise RunFolderError(f"{folder.file(RunFolder.EVALUATED)}: candidate values exceed the variables' "
-                             f"cardinality")
+        raise RunFolderError(f"{folder.file(RunFolder.EVALUATED)}: candidate values exceed the variables' cardinality")
     search = config.get("search") if isinstance(config.get("search"), dict) else {}
     method = str(search.get("method") or (result or {}).get("method") or "unknown")
     return RunData(
@@ -785,9 +818,16 @@ def _links(data: RunData) -> Tuple[List[LinkFinding], Optional[np.ndarray]]:
     tests = n * (n - 1) // 2 * len({record["generation"] for record in data.trees})
     links = [
         LinkFinding(
-            a=int(a[k]), b=int(b[k]), names=(data.variable_names[a[k]], data.variable_names[b[k]]),
-            peak_information=float(information[k]), generation=int(generation[k]), fitted_on=int(size[k]),
-            g=float(g[k]), df=int(df[k]), p_value=float(p), p_adjusted=float(min(1.0, p * tests)),
+            a=int(a[k]),
+            b=int(b[k]),
+            names=(data.variable_names[a[k]], data.variable_names[b[k]]),
+            peak_information=float(information[k]),
+            generation=int(generation[k]),
+            fitted_on=int(size[k]),
+            g=float(g[k]),
+            df=int(df[k]),
+            p_value=float(p),
+            p_adjusted=float(min(1.0, p * tests)),
             generations_linked=int(linked[code[k]]),
         )
         for k, p in zip(peak, p_values)
@@ -835,8 +875,10 @@ def _entropy_trace(log: List[dict]) -> List[dict]:
     for record in log:
         entropy = record.get("model_entropy")
         if isinstance(entropy, (int, float)) and math.isfinite(entropy):
-            trace.append({key: record.get(key) for key in ("generation", "evaluations", "best", "mean")}
-                         | {"entropy": float(entropy)})
+            trace.append(
+                {key: record.get(key) for key in ("generation", "evaluations", "best", "mean")}
+                | {"entropy": float(entropy)}
+            )
     return trace
 
 
@@ -845,8 +887,9 @@ def _listed(names: Sequence[str], limit: int = 8) -> str:
     return shown + (" …" if len(names) > limit else "")
 
 
-def explain_run(run_dir, top: int = 10, best_fraction: float = BEST_FRACTION,
-                best_minimum: int = BEST_MINIMUM) -> Explanation:
+def explain_run(
+    run_dir, top: int = 10, best_fraction: float = BEST_FRACTION, best_minimum: int = BEST_MINIMUM
+) -> Explanation:
     """Analyse a run folder (see the module docstring for the definitions)."""
     if int(top) != top or top < 1:
         raise ValueError(f"top must be a positive whole number; got {top!r}")
@@ -854,8 +897,9 @@ def explain_run(run_dir, top: int = 10, best_fraction: float = BEST_FRACTION,
     names, n, goal = data.variable_names, len(data.variable_names), data.goal
     finite = np.isfinite(data.scores)
     if not finite.any():
-        raise RunFolderError(f"{data.path}: none of the {data.scores.shape[0]} evaluations succeeded; "
-                             f"there is nothing to explain")
+        raise RunFolderError(
+            f"{data.path}: none of the {data.scores.shape[0]} evaluations succeeded; there is nothing to explain"
+        )
     X, scores, generation = data.candidates[finite], data.scores[finite], data.generation[finite]
     sign = 1.0 if goal == "maximize" else -1.0
     cautions: List[str] = []
@@ -870,8 +914,10 @@ def explain_run(run_dir, top: int = 10, best_fraction: float = BEST_FRACTION,
     favoured, agree = favoured_values(X[best], data.cardinality)
     lower, upper = wilson_interval(agree, best.shape[0])
     if best.shape[0] < BEST_MINIMUM:
-        cautions.append(f"Only {best.shape[0]} candidates were scored, so the best candidates are all of them and "
-                        f"the agreement intervals are wide.")
+        cautions.append(
+            f"Only {best.shape[0]} candidates were scored, so the best candidates are all of them and "
+            f"the agreement intervals are wide."
+        )
     holds = X == favoured[None, :]
     within = main_effects(holds, scores, generation)
     main_threshold = family_threshold(n)
@@ -882,29 +928,52 @@ def explain_run(run_dir, top: int = 10, best_fraction: float = BEST_FRACTION,
     for i in range(n):
         effect, se = float(within.effect[i]), float(within.se[i])
         clear = np.isfinite(effect) and abs(effect) > main_threshold * se
-        variables.append(VariableFinding(
-            index=i, name=names[i], favoured=int(favoured[i]), best_value=int(best_row[i]), agree=int(agree[i]),
-            best_count=int(best.shape[0]), interval=(float(lower[i]), float(upper[i])), effect=effect,
-            effect_se=se, with_count=int(within.with_count[i]), without_count=int(within.without_count[i]),
-            effect_across_generations=float(across.effect[i]),
-            adjusted=float(adjusted[i]), adjusted_se=float(adjusted_se[i]),
-            helps=(bool(sign * effect > 0) if clear else None),
-        ))
-    variables.sort(key=lambda v: (not np.isfinite(v.effect), -abs(v.effect) if np.isfinite(v.effect) else 0.0,
-                                  -v.frequency, v.index))
+        variables.append(
+            VariableFinding(
+                index=i,
+                name=names[i],
+                favoured=int(favoured[i]),
+                best_value=int(best_row[i]),
+                agree=int(agree[i]),
+                best_count=int(best.shape[0]),
+                interval=(float(lower[i]), float(upper[i])),
+                effect=effect,
+                effect_se=se,
+                with_count=int(within.with_count[i]),
+                without_count=int(within.without_count[i]),
+                effect_across_generations=float(across.effect[i]),
+                adjusted=float(adjusted[i]),
+                adjusted_se=float(adjusted_se[i]),
+                helps=(bool(sign * effect > 0) if clear else None),
+            )
+        )
+    variables.sort(
+        key=lambda v: (
+            not np.isfinite(v.effect),
+            -abs(v.effect) if np.isfinite(v.effect) else 0.0,
+            -v.frequency,
+            v.index,
+        )
+    )
     importance = [v.index for v in variables]
     few = [v.name for v in variables if np.isfinite(v.effect) and min(v.with_count, v.without_count) < FEW_CANDIDATES]
     if few:
-        cautions.append(f"{len(few)} main effects rest on fewer than {FEW_CANDIDATES} candidates on one side "
-                        f"(marked 'few'): {_listed(few)}.")
+        cautions.append(
+            f"{len(few)} main effects rest on fewer than {FEW_CANDIDATES} candidates on one side "
+            f"(marked 'few'): {_listed(few)}."
+        )
     unknown = [v.name for v in variables if not np.isfinite(v.effect)]
     if unknown:
-        cautions.append(f"{len(unknown)} variables hardly varied within any generation, so their effect cannot be "
-                        f"estimated: {_listed(unknown)}.")
+        cautions.append(
+            f"{len(unknown)} variables hardly varied within any generation, so their effect cannot be "
+            f"estimated: {_listed(unknown)}."
+        )
     opposed = [v.name for v in variables if v.helps is False]
     if opposed:
-        notes.append(f"For {_listed(opposed)} the favoured value scores worse on average: the best candidates "
-                     f"keep it for the sake of a partner (see the interactions).")
+        notes.append(
+            f"For {_listed(opposed)} the favoured value scores worse on average: the best candidates "
+            f"keep it for the sake of a partner (see the interactions)."
+        )
 
     binary = data.cardinality == 2
     multi_valued = bool(not binary.all())
@@ -918,9 +987,11 @@ def explain_run(run_dir, top: int = 10, best_fraction: float = BEST_FRACTION,
         pairs_reason = "The problem has a single variable, so there are no pairs."
     elif data.method == "hillclimb":
         pairs_available = False
-        pairs_reason = ("The hill climber tries single-variable changes of a few current points, so the settings "
-                        "of two variables are never varied independently of each other; their interaction cannot "
-                        "be estimated from its candidates.")
+        pairs_reason = (
+            "The hill climber tries single-variable changes of a few current points, so the settings "
+            "of two variables are never varied independently of each other; their interaction cannot "
+            "be estimated from its candidates."
+        )
     else:
         contrasts = interaction_contrasts(X == values[None, :], scores, generation)
         rows, cols = np.triu_indices(n, 1)
@@ -930,50 +1001,98 @@ def explain_run(run_dir, top: int = 10, best_fraction: float = BEST_FRACTION,
         size = np.abs(contrasts.contrast[rows, cols]) - pair_threshold * contrasts.se[rows, cols]
         if not estimable.size:
             pairs_available = False
-            pairs_reason = ("No pair of variables took all four combinations of values (at least two candidates "
-                            "each) within a generation, so no interaction can be estimated.")
-        ranked = estimable[np.argsort(-size[estimable], kind="stable")][:int(top)]
+            pairs_reason = (
+                "No pair of variables took all four combinations of values (at least two candidates "
+                "each) within a generation, so no interaction can be estimated."
+            )
+        ranked = estimable[np.argsort(-size[estimable], kind="stable")][: int(top)]
         for k in ranked:
             i, j = int(rows[k]), int(cols[k])
             c = contrasts
-            shape = classify_pair(c.only_a[i, j], c.only_b[i, j], c.both[i, j], c.se_only_a[i, j],
-                                  c.se_only_b[i, j], c.contrast[i, j], c.se[i, j], goal, pair_threshold)
-            pairs.append(PairFinding(
-                a=i, b=j, names=(names[i], names[j]), values=(int(values[i]), int(values[j])),
-                contrast=float(c.contrast[i, j]), se=float(c.se[i, j]), only_a=float(c.only_a[i, j]),
-                only_b=float(c.only_b[i, j]), both=float(c.both[i, j]), min_cell=int(c.min_cell[i, j]),
-                shape=shape, link=link_of.get((i, j)),
-            ))
+            shape = classify_pair(
+                c.only_a[i, j],
+                c.only_b[i, j],
+                c.both[i, j],
+                c.se_only_a[i, j],
+                c.se_only_b[i, j],
+                c.contrast[i, j],
+                c.se[i, j],
+                goal,
+                pair_threshold,
+            )
+            pairs.append(
+                PairFinding(
+                    a=i,
+                    b=j,
+                    names=(names[i], names[j]),
+                    values=(int(values[i]), int(values[j])),
+                    contrast=float(c.contrast[i, j]),
+                    se=float(c.se[i, j]),
+                    only_a=float(c.only_a[i, j]),
+                    only_b=float(c.only_b[i, j]),
+                    both=float(c.both[i, j]),
+                    min_cell=int(c.min_cell[i, j]),
+                    shape=shape,
+                    link=link_of.get((i, j)),
+                )
+            )
         thin = [p for p in pairs if p.min_cell < FEW_CANDIDATES]
         if thin:
-            cautions.append(f"{len(thin)} of the listed pairs have a combination of values seen in fewer than "
-                            f"{FEW_CANDIDATES} candidates (marked 'few'); their estimates are fragile.")
+            cautions.append(
+                f"{len(thin)} of the listed pairs have a combination of values seen in fewer than "
+                f"{FEW_CANDIDATES} candidates (marked 'few'); their estimates are fragile."
+            )
     if data.trees:
         links_reason = ""
     elif data.method in MODEL_METHODS and data.method != "univariate":
         links_reason = "The run folder has no trees.jsonl, so the links the model learned are unknown."
     else:
-        what = {"univariate": "treats every variable as independent",
-                "hillclimb": "does not fit a probability model",
-                "random": "draws candidates uniformly at random"}.get(data.method, "learns no dependency tree")
-        links_reason = (f"This run's method ({data.method}) {what}, so no dependency tree was learned and there "
-                        f"are no links to report.")
+        what = {
+            "univariate": "treats every variable as independent",
+            "hillclimb": "does not fit a probability model",
+            "random": "draws candidates uniformly at random",
+        }.get(data.method, "learns no dependency tree")
+        links_reason = (
+            f"This run's method ({data.method}) {what}, so no dependency tree was learned and there "
+            f"are no links to report."
+        )
     if data.method == "hillclimb":
-        cautions.append("The hill climber's candidates are single-variable changes of a few points, so the main "
-                        "effects compare few distinct configurations; read them as rough indications.")
+        cautions.append(
+            "The hill climber's candidates are single-variable changes of a few points, so the main "
+            "effects compare few distinct configurations; read them as rough indications."
+        )
     entropy = _entropy_trace(data.log)
     generations = int(generation.max()) + 1
     if generations < 3:
         cautions.append(f"The run has only {generations} generation(s); the estimates rest on few comparisons.")
     best_score = float(scores[best[0]])
     return Explanation(
-        data=data, best_count=int(best.shape[0]), finite_count=int(scores.shape[0]), best_score=best_score,
-        variables=variables, pairs=pairs, links=links, pairs_available=pairs_available, pairs_reason=pairs_reason,
-        links_reason=links_reason, entropy=entropy, cautions=cautions, notes=notes, contrasts=contrasts,
-        peak_information=peak_information, multi_valued=multi_valued,
-        tree_order=_strongest_order(peak_information if peak_information is not None else
-                                    (np.abs(contrasts.contrast) if contrasts is not None else None), importance),
-        top=int(top), main_threshold=main_threshold, pair_threshold=pair_threshold, pairs_tested=tested,
+        data=data,
+        best_count=int(best.shape[0]),
+        finite_count=int(scores.shape[0]),
+        best_score=best_score,
+        variables=variables,
+        pairs=pairs,
+        links=links,
+        pairs_available=pairs_available,
+        pairs_reason=pairs_reason,
+        links_reason=links_reason,
+        entropy=entropy,
+        cautions=cautions,
+        notes=notes,
+        contrasts=contrasts,
+        peak_information=peak_information,
+        multi_valued=multi_valued,
+        tree_order=_strongest_order(
+            peak_information
+            if peak_information is not None
+            else (np.abs(contrasts.contrast) if contrasts is not None else None),
+            importance,
+        ),
+        top=int(top),
+        main_threshold=main_threshold,
+        pair_threshold=pair_threshold,
+        pairs_tested=tested,
     )
 
 
@@ -993,13 +1112,13 @@ def run_summary(run_dir) -> List[str]:
     binary = explanation.data.cardinality == 2
     shown = [v for v in explanation.variables if np.isfinite(v.effect)][:3] or explanation.variables[:3]
     settings = ", ".join(
-        f"{v.name}={v.favoured} ({v.frequency:.0%} of the best, effect {_number(v.effect)})" for v in shown)
+        f"{v.name}={v.favoured} ({v.frequency:.0%} of the best, effect {_number(v.effect)})" for v in shown
+    )
     lines = [f"settings that matter most: {settings}"]
     if explanation.clear_pairs:
         pair = explanation.clear_pairs[0]
         sentence = pair_sentence(pair, (bool(binary[pair.a]), bool(binary[pair.b]))).replace("`", "")
-        lines.append(f"strongest interaction: {sentence} (interaction {_number(pair.contrast)} ± "
-                     f"{_Z * pair.se:.2g})")
+        lines.append(f"strongest interaction: {sentence} (interaction {_number(pair.contrast)} ± {_Z * pair.se:.2g})")
     elif explanation.pairs_reason:
         lines.append(f"interactions: none estimated ({explanation.data.method} run)")
     else:
@@ -1007,8 +1126,10 @@ def run_summary(run_dir) -> List[str]:
     if explanation.entropy:
         first, last = explanation.entropy[0], explanation.entropy[-1]
         linked = f"; {len(explanation.links)} pairs linked" if explanation.data.trees else ""
-        lines.append(f"model: uncertainty (entropy) {first['entropy']:.3g} -> {last['entropy']:.3g} nats over "
-                     f"{last['generation'] + 1} generations{linked}")
+        lines.append(
+            f"model: uncertainty (entropy) {first['entropy']:.3g} -> {last['entropy']:.3g} nats over "
+            f"{last['generation'] + 1} generations{linked}"
+        )
     else:
         lines.append(f"model: none ({explanation.data.method}); {explanation.finite_count:,} candidates scored")
     lines.append(f"see the rest: optim explain {shlex.quote(str(explanation.data.path))}")

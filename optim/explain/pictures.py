@@ -165,31 +165,55 @@ def _draw_one_tree(plt, axes, graph, explanation: Explanation, title: str) -> No
     weights = np.array([w for _, _, w in graph.edges(data="weight", default=0.0)], dtype=float)
     top = max(float(weights.max()) if weights.size else 0.0, 0.05)  # negligible information stays thin
     if graph.number_of_edges():
-        nx.draw_networkx_edges(graph, positions, ax=axes, width=0.4 + 6.0 * weights / top,
-                               edge_color="#555555", alpha=0.8)
+        nx.draw_networkx_edges(
+            graph, positions, ax=axes, width=0.4 + 6.0 * weights / top, edge_color="#555555", alpha=0.8
+        )
     nodes = list(graph.nodes())
     colours = plt.get_cmap("tab10")
     for value in sorted({favoured.get(v, 0) for v in nodes}):
         members = [v for v in nodes if favoured.get(v, 0) == value]
-        nx.draw_networkx_nodes(graph, positions, nodelist=members, ax=axes, node_size=110,
-                               node_color=[colours(value % 10)],
-                               alpha=[0.3 + 0.7 * agreement.get(v, 1.0) for v in members],
-                               label=f"favoured value {value}")
+        nx.draw_networkx_nodes(
+            graph,
+            positions,
+            nodelist=members,
+            ax=axes,
+            node_size=110,
+            node_color=[colours(value % 10)],
+            alpha=[0.3 + 0.7 * agreement.get(v, 1.0) for v in members],
+            label=f"favoured value {value}",
+        )
     font = 8 if len(nodes) <= 30 else 6.5
     for node in nodes:
         x, y = positions[node]
         label = names[node] if 0 <= node < len(names) else str(node)
         if node not in leaves:  # centres and inner nodes: a slanted label, clear of a chain's neighbours
-            axes.annotate(label, (x, y), xytext=(3, 3), textcoords="offset points", fontsize=font,
-                          rotation=40, rotation_mode="anchor", ha="left", va="bottom")
+            axes.annotate(
+                label,
+                (x, y),
+                xytext=(3, 3),
+                textcoords="offset points",
+                fontsize=font,
+                rotation=40,
+                rotation_mode="anchor",
+                ha="left",
+                va="bottom",
+            )
             continue
         rx, ry = positions[roots[node]]
         angle = math.degrees(math.atan2(y - ry, x - rx))
         left = 90 < angle % 360 < 270
         offset = 5 * np.array([math.cos(math.radians(angle)), math.sin(math.radians(angle))])
-        axes.annotate(label, (x, y), xytext=offset, textcoords="offset points", fontsize=font,
-                      rotation=angle + 180 if left else angle, rotation_mode="anchor",
-                      ha="right" if left else "left", va="center")
+        axes.annotate(
+            label,
+            (x, y),
+            xytext=offset,
+            textcoords="offset points",
+            fontsize=font,
+            rotation=angle + 180 if left else angle,
+            rotation_mode="anchor",
+            ha="right" if left else "left",
+            va="center",
+        )
     axes.set_title(title, fontsize=10)
     axes.legend(loc="lower left", fontsize=8, frameon=False)
     axes.set_axis_off()
@@ -211,8 +235,13 @@ def _draw_tree(plt, explanation: Explanation, path: Path) -> Optional[Path]:
                 notes.append(f"{unlinked} settings without such a link are left out")
             panels.append((strongest, title + "".join(f"\n{note}" for note in notes)))
     final, cut = _summarised(last, MAX_LABELLED)
-    panels.append((final, "Last learned tree (tree.graphml)\n(width: mutual information among the last "
-                          "survivors)" + (f"\n{cut}" if cut else "")))
+    panels.append(
+        (
+            final,
+            "Last learned tree (tree.graphml)\n(width: mutual information among the last "
+            "survivors)" + (f"\n{cut}" if cut else ""),
+        )
+    )
     size = max(7.0, 0.2 * max(g.number_of_nodes() for g, _ in panels) + 4)
     figure, axes = plt.subplots(1, len(panels), figsize=(size * len(panels), size), squeeze=False)
     for ax, (graph, title) in zip(axes[0], panels):
@@ -273,9 +302,14 @@ def _draw_interactions(plt, explanation: Explanation, path: Path) -> Optional[Pa
         contrast, se = explanation.contrasts.contrast[index], explanation.contrasts.se[index]
         with np.errstate(invalid="ignore"):
             clear = np.where(np.abs(contrast) > explanation.pair_threshold * se, sign * contrast, 0.0)
-        panels.append((np.where(np.isfinite(contrast), clear, np.nan),
-                       "Interaction of each pair (score units; white: does not stand out)",
-                       "blue: together better than apart; red: worse", True))
+        panels.append(
+            (
+                np.where(np.isfinite(contrast), clear, np.nan),
+                "Interaction of each pair (score units; white: does not stand out)",
+                "blue: together better than apart; red: worse",
+                True,
+            )
+        )
     if explanation.peak_information is not None:
         information = explanation.peak_information[index].copy()
         np.fill_diagonal(information, np.nan)
@@ -284,8 +318,11 @@ def _draw_interactions(plt, explanation: Explanation, path: Path) -> Optional[Pa
     figure, axes = plt.subplots(1, len(panels), figsize=(side * len(panels) + 1, side), squeeze=False)
     for ax, (matrix, title, colour_label, diverging) in zip(axes[0], panels):
         _heat(plt, figure, ax, matrix, labels, title, colour_label, diverging)
-    subtitle = ("settings in depth-first order of the tree of strongest links" if explanation.data.trees
-                else "settings in depth-first order of the tree of strongest interactions")
+    subtitle = (
+        "settings in depth-first order of the tree of strongest links"
+        if explanation.data.trees
+        else "settings in depth-first order of the tree of strongest interactions"
+    )
     if len(shown) < len(explanation.names):
         subtitle += f"; the {len(shown)} most important of {len(explanation.names)}"
     figure.suptitle(subtitle, fontsize=9)
@@ -303,8 +340,9 @@ def _draw_convergence(plt, explanation: Explanation, path: Path) -> Optional[Pat
     mean = np.array([np.nan if r.get("mean") is None else r["mean"] for r in log], dtype=float)
     entropy = np.array([np.nan if r.get("model_entropy") is None else r["model_entropy"] for r in log], dtype=float)
     with_model = explanation.data.method in ("tree", "forest", "univariate") and np.isfinite(entropy).any()
-    figure, axes = plt.subplots(2 if with_model else 1, 1, figsize=(8, 6.5 if with_model else 4), sharex=True,
-                                squeeze=False)
+    figure, axes = plt.subplots(
+        2 if with_model else 1, 1, figsize=(8, 6.5 if with_model else 4), sharex=True, squeeze=False
+    )
     top = axes[0][0]
     top.plot(evaluations, best, label="best so far", color="#1f77b4")
     top.plot(evaluations, mean, label="generation mean", color="#ff7f0e", alpha=0.8)
@@ -336,9 +374,11 @@ def write_pictures(explanation: Explanation, folder=None) -> Tuple[Dict[str, Pat
     plt = _pyplot()
     written: Dict[str, Path] = {}
     skipped = []
-    drawers = {"tree.png": (_draw_tree, "no tree was learned"),
-               "interactions.png": (_draw_interactions, "no pairwise estimates"),
-               "convergence.png": (_draw_convergence, "log.jsonl has no generations")}
+    drawers = {
+        "tree.png": (_draw_tree, "no tree was learned"),
+        "interactions.png": (_draw_interactions, "no pairwise estimates"),
+        "convergence.png": (_draw_convergence, "log.jsonl has no generations"),
+    }
     for name in PICTURES:
         draw, why = drawers[name]
         result = draw(plt, explanation, folder / name)

@@ -88,8 +88,10 @@ def _variable_note(variable: VariableFinding) -> str:
 
 def _cells_text(explanation: Explanation, pair: PairFinding) -> str:
     a, b = pair.names
-    return (f"only {a}: {_num(pair.only_a, signed=True)}, only {b}: {_num(pair.only_b, signed=True)}, "
-            f"both: {_num(pair.both, signed=True)}")
+    return (
+        f"only {a}: {_num(pair.only_a, signed=True)}, only {b}: {_num(pair.only_b, signed=True)}, "
+        f"both: {_num(pair.both, signed=True)}"
+    )
 
 
 def _link_text(link: Optional[LinkFinding]) -> str:
@@ -102,16 +104,22 @@ def _headline(explanation: Explanation) -> List[str]:
     lines = []
     variables = explanation.variables
     decided = sum(v.interval[0] >= 0.9 for v in variables)
-    lines.append(f"The best {explanation.best_count:,} candidates agree (at least 90% of them, with 95% "
-                 f"confidence) on {decided} of the {len(variables)} settings.")
+    lines.append(
+        f"The best {explanation.best_count:,} candidates agree (at least 90% of them, with 95% "
+        f"confidence) on {decided} of the {len(variables)} settings."
+    )
     top = next((v for v in variables if v.helps), None)
     if top is not None:
-        lines.append(f"The setting that matters most is {_plain_setting(explanation, top)}: with it, candidates "
-                     f"score {_num(abs(top.effect))} {_better(explanation)} (better) on average than without it.")
+        lines.append(
+            f"The setting that matters most is {_plain_setting(explanation, top)}: with it, candidates "
+            f"score {_num(abs(top.effect))} {_better(explanation)} (better) on average than without it."
+        )
     clear = [p for p in explanation.pairs if p.shape.kind != "unclear"]
     if clear:
-        lines.append(f"The strongest interaction: {_sentence(explanation, clear[0])} "
-                     f"(interaction {_num(clear[0].contrast, signed=True)} ± {_num(_Z * clear[0].se, 2)}).")
+        lines.append(
+            f"The strongest interaction: {_sentence(explanation, clear[0])} "
+            f"(interaction {_num(clear[0].contrast, signed=True)} ± {_num(_Z * clear[0].se, 2)})."
+        )
     elif explanation.pairs_available:
         lines.append("No pair of settings shows a clear interaction.")
     return lines
@@ -178,22 +186,47 @@ def _glossary(explanation: Explanation) -> List[str]:
 
 def _variables_section(explanation: Explanation) -> List[str]:
     better = _better(explanation)
-    lines = ["## Settings the best candidates agree on", "",
-             f"Sorted by the size of the effect. A negative effect means a lower score, a positive one a "
-             f"higher score; {better} is better here.", ""]
+    lines = [
+        "## Settings the best candidates agree on",
+        "",
+        f"Sorted by the size of the effect. A negative effect means a lower score, a positive one a "
+        f"higher score; {better} is better here.",
+        "",
+    ]
     rows = []
     for rank, v in enumerate(explanation.variables, 1):
         lo, hi = v.effect_interval
-        rows.append([
-            rank, f"`{v.name}`", v.favoured, v.best_value,
-            f"{_percent(v.frequency)} [{_percent(v.interval[0])}, {_percent(v.interval[1])}]",
-            f"{_num(v.effect, signed=True)} [{_num(lo, signed=True)}, {_num(hi, signed=True)}]"
-            if np.isfinite(v.effect) else "n/a",
-            f"{_num(v.adjusted, signed=True)} ± {_num(_Z * v.adjusted_se, 2)}" if np.isfinite(v.adjusted) else "n/a",
-            _verdict(v), _variable_note(v),
-        ])
-    lines += _table(["#", "setting", "favoured", "in best found", "agreement [95%]", "effect [95%]",
-                     "others held fixed ± 95%", "verdict", "note"], rows)
+        rows.append(
+            [
+                rank,
+                f"`{v.name}`",
+                v.favoured,
+                v.best_value,
+                f"{_percent(v.frequency)} [{_percent(v.interval[0])}, {_percent(v.interval[1])}]",
+                f"{_num(v.effect, signed=True)} [{_num(lo, signed=True)}, {_num(hi, signed=True)}]"
+                if np.isfinite(v.effect)
+                else "n/a",
+                f"{_num(v.adjusted, signed=True)} ± {_num(_Z * v.adjusted_se, 2)}"
+                if np.isfinite(v.adjusted)
+                else "n/a",
+                _verdict(v),
+                _variable_note(v),
+            ]
+        )
+    lines += _table(
+        [
+            "#",
+            "setting",
+            "favoured",
+            "in best found",
+            "agreement [95%]",
+            "effect [95%]",
+            "others held fixed ± 95%",
+            "verdict",
+            "note",
+        ],
+        rows,
+    )
     return lines + [""]
 
 
@@ -202,34 +235,50 @@ def _pairs_section(explanation: Explanation) -> List[str]:
     if not explanation.pairs_available:
         return lines + [explanation.pairs_reason, ""]
     if explanation.multi_valued:
-        lines += ["Some settings take more than two values; for them the interaction compares their favoured "
-                  "value against all other values together (shown as `name`=value).", ""]
+        lines += [
+            "Some settings take more than two values; for them the interaction compares their favoured "
+            "value against all other values together (shown as `name`=value).",
+            "",
+        ]
     better = "lower" if explanation.goal == "minimize" else "higher"
     sign_word = "negative" if explanation.goal == "minimize" else "positive"
-    lines += [f"The {len(explanation.clear_pairs)} strongest interactions among the {explanation.pairs_tested:,} "
-              f"pairs compared, ranked by how large they are at least. A pair is listed only if its interaction "
-              f"is more than {explanation.pair_threshold:.2f} standard errors from zero, which allows for the "
-              f"number of pairs looked at (Bonferroni), so chance alone rarely puts a pair here. Here a "
-              f"{sign_word} interaction means the pair together "
-              f"scores {better} (better) than their separate effects add up to. The cells give the mean score "
-              f"difference from candidates with neither setting, for only the first, only the second, and both.",
-              ""]
+    lines += [
+        f"The {len(explanation.clear_pairs)} strongest interactions among the {explanation.pairs_tested:,} "
+        f"pairs compared, ranked by how large they are at least. A pair is listed only if its interaction "
+        f"is more than {explanation.pair_threshold:.2f} standard errors from zero, which allows for the "
+        f"number of pairs looked at (Bonferroni), so chance alone rarely puts a pair here. Here a "
+        f"{sign_word} interaction means the pair together "
+        f"scores {better} (better) than their separate effects add up to. The cells give the mean score "
+        f"difference from candidates with neither setting, for only the first, only the second, and both.",
+        "",
+    ]
     clear = explanation.clear_pairs
     if not clear:
         largest = explanation.pairs[0] if explanation.pairs else None
-        text = (f"No pair stands out among the {explanation.pairs_tested:,} pairs compared: none has an interaction "
-                f"beyond {explanation.pair_threshold:.2f} standard errors")
+        text = (
+            f"No pair stands out among the {explanation.pairs_tested:,} pairs compared: none has an interaction "
+            f"beyond {explanation.pair_threshold:.2f} standard errors"
+        )
         if largest is not None:
-            text += (f" (the largest: `{largest.names[0]}` and `{largest.names[1]}`, "
-                     f"{_num(largest.contrast, signed=True)} ± {_num(_Z * largest.se, 2)})")
+            text += (
+                f" (the largest: `{largest.names[0]}` and `{largest.names[1]}`, "
+                f"{_num(largest.contrast, signed=True)} ± {_num(_Z * largest.se, 2)})"
+            )
         return lines + [text + ". The settings seem to act independently of each other.", ""]
     rows = []
     for rank, pair in enumerate(clear, 1):
         lo, hi = pair.interval
         note = f"few ({pair.min_cell} in a cell)" if pair.min_cell < FEW_CANDIDATES else ""
-        rows.append([rank, _sentence(explanation, pair),
-                     f"{_num(pair.contrast, signed=True)} [{_num(lo, signed=True)}, {_num(hi, signed=True)}]",
-                     _cells_text(explanation, pair), _link_text(pair.link), note])
+        rows.append(
+            [
+                rank,
+                _sentence(explanation, pair),
+                f"{_num(pair.contrast, signed=True)} [{_num(lo, signed=True)}, {_num(hi, signed=True)}]",
+                _cells_text(explanation, pair),
+                _link_text(pair.link),
+                note,
+            ]
+        )
     lines += _table(["#", "in words", "interaction [95%]", "cells vs neither", "linked by the model", "note"], rows)
     return lines + [""]
 
@@ -239,7 +288,7 @@ def _links_section(explanation: Explanation) -> List[str]:
     if not explanation.links:
         return lines + [explanation.links_reason or "The model never linked two settings.", ""]
     generations = len({record["generation"] for record in explanation.data.trees})
-    shown = explanation.links[:explanation.top]
+    shown = explanation.links[: explanation.top]
     lines += [
         f"The dependency tree was refitted {generations} times. At the end of a search the kept candidates "
         f"are nearly identical, so their links say little; each pair is therefore reported at the generation "
@@ -251,11 +300,36 @@ def _links_section(explanation: Explanation) -> List[str]:
         f"drift together by chance, so check the interactions above to see whether a pair matters for the score.",
         "",
     ]
-    rows = [[rank, f"`{link.names[0]}` – `{link.names[1]}`", _num(link.peak_information), link.generation,
-             link.fitted_on, _num(link.g), link.df, _p(link.p_value), _p(link.p_adjusted), link.generations_linked]
-            for rank, link in enumerate(shown, 1)]
-    lines += _table(["#", "pair", "peak MI (nats)", "at generation", "kept candidates N", "G = 2·N·MI", "df",
-                     "p-value", "adjusted p", "generations linked"], rows)
+    rows = [
+        [
+            rank,
+            f"`{link.names[0]}` – `{link.names[1]}`",
+            _num(link.peak_information),
+            link.generation,
+            link.fitted_on,
+            _num(link.g),
+            link.df,
+            _p(link.p_value),
+            _p(link.p_adjusted),
+            link.generations_linked,
+        ]
+        for rank, link in enumerate(shown, 1)
+    ]
+    lines += _table(
+        [
+            "#",
+            "pair",
+            "peak MI (nats)",
+            "at generation",
+            "kept candidates N",
+            "G = 2·N·MI",
+            "df",
+            "p-value",
+            "adjusted p",
+            "generations linked",
+        ],
+        rows,
+    )
     return lines + [""]
 
 
@@ -263,8 +337,11 @@ def _entropy_section(explanation: Explanation) -> List[str]:
     lines = ["## How the model sharpened", ""]
     trace = explanation.entropy
     if not trace or explanation.data.method not in ("tree", "forest", "univariate"):
-        return lines + [f"This run's method ({explanation.data.method}) fits no probability model, so there is "
-                        f"no model entropy to follow.", ""]
+        return lines + [
+            f"This run's method ({explanation.data.method}) fits no probability model, so there is "
+            f"no model entropy to follow.",
+            "",
+        ]
     first, last = trace[0]["entropy"], trace[-1]["entropy"]
     half = next((r for r in trace if r["entropy"] <= first / 2), None)
     text = f"The model's entropy fell from {_num(first)} to {_num(last)} nats over {len(trace)} generations"
@@ -272,23 +349,35 @@ def _entropy_section(explanation: Explanation) -> List[str]:
         text += f"; half of it was gone by generation {half['generation']} ({half['evaluations']:,} evaluations)"
     text += "."
     if np.all(explanation.data.cardinality == 2) and last > 0:
-        text += (f" What is left corresponds to about {last / math.log(2):.1f} on/off settings the model has "
-                 f"not decided, typically settings that make little difference.")
+        text += (
+            f" What is left corresponds to about {last / math.log(2):.1f} on/off settings the model has "
+            f"not decided, typically settings that make little difference."
+        )
     lines += [text, ""]
     picks = sorted(set(np.linspace(0, len(trace) - 1, num=min(len(trace), 8)).round().astype(int).tolist()))
-    rows = [[trace[k]["generation"], f"{trace[k]['evaluations']:,}", _num(trace[k].get("best")),
-             _num(trace[k].get("mean")), _num(trace[k]["entropy"])] for k in picks]
+    rows = [
+        [
+            trace[k]["generation"],
+            f"{trace[k]['evaluations']:,}",
+            _num(trace[k].get("best")),
+            _num(trace[k].get("mean")),
+            _num(trace[k]["entropy"]),
+        ]
+        for k in picks
+    ]
     lines += _table(["generation", "evaluations", "best so far", "generation mean", "entropy (nats)"], rows)
     return lines + [""]
 
 
 def _pictures_section(pictures: Mapping[str, Path], pictures_note: Optional[str]) -> List[str]:
     lines = ["## Pictures", ""]
-    captions = {"tree.png": "the strongest links over the run (left) and the last learned tree (right); thicker "
-                            "links carry more mutual information, node colour is the favoured value",
-                "interactions.png": "interaction of every pair (left) and the strongest link over the run (right), "
-                                    "related settings next to each other",
-                "convergence.png": "best and mean score and the model's entropy against evaluations"}
+    captions = {
+        "tree.png": "the strongest links over the run (left) and the last learned tree (right); thicker "
+        "links carry more mutual information, node colour is the favoured value",
+        "interactions.png": "interaction of every pair (left) and the strongest link over the run (right), "
+        "related settings next to each other",
+        "convergence.png": "best and mean score and the model's entropy against evaluations",
+    }
     for name, path in pictures.items():
         lines.append(f"- [{name}]({Path(path).name}): {captions.get(name, '')}")
     if pictures_note:
@@ -296,8 +385,9 @@ def _pictures_section(pictures: Mapping[str, Path], pictures_note: Optional[str]
     return lines + [""]
 
 
-def render_markdown(explanation: Explanation, pictures: Optional[Mapping[str, Path]] = None,
-                    pictures_note: Optional[str] = None) -> str:
+def render_markdown(
+    explanation: Explanation, pictures: Optional[Mapping[str, Path]] = None, pictures_note: Optional[str] = None
+) -> str:
     """The full report as Markdown."""
     data = explanation.data
     stop = (data.result or {}).get("stop_reason", "not finished")
@@ -325,60 +415,96 @@ def render_markdown(explanation: Explanation, pictures: Optional[Mapping[str, Pa
 # -- JSON ---------------------------------------------------------------------------------------
 def _variable_record(v: VariableFinding) -> dict:
     return {
-        "name": v.name, "index": v.index, "favoured": v.favoured, "best_found": v.best_value,
-        "agree": v.agree, "best_candidates": v.best_count, "frequency": v.frequency,
-        "frequency_interval": list(v.interval), "effect": _finite(v.effect), "effect_se": _finite(v.effect_se),
+        "name": v.name,
+        "index": v.index,
+        "favoured": v.favoured,
+        "best_found": v.best_value,
+        "agree": v.agree,
+        "best_candidates": v.best_count,
+        "frequency": v.frequency,
+        "frequency_interval": list(v.interval),
+        "effect": _finite(v.effect),
+        "effect_se": _finite(v.effect_se),
         "effect_interval": [_finite(x) for x in v.effect_interval] if np.isfinite(v.effect) else None,
-        "with_count": v.with_count, "without_count": v.without_count,
+        "with_count": v.with_count,
+        "without_count": v.without_count,
         "effect_across_generations": _finite(v.effect_across_generations),
-        "adjusted_effect": _finite(v.adjusted), "adjusted_se": _finite(v.adjusted_se), "helps": v.helps,
+        "adjusted_effect": _finite(v.adjusted),
+        "adjusted_se": _finite(v.adjusted_se),
+        "helps": v.helps,
     }
 
 
 def _link_record(link: LinkFinding) -> dict:
-    return {"a": link.names[0], "b": link.names[1], "a_index": link.a, "b_index": link.b,
-            "peak_mutual_information": link.peak_information, "generation": link.generation,
-            "fitted_on": link.fitted_on, "g": link.g, "df": link.df, "p_value": link.p_value,
-            "p_adjusted": link.p_adjusted, "generations_linked": link.generations_linked}
+    return {
+        "a": link.names[0],
+        "b": link.names[1],
+        "a_index": link.a,
+        "b_index": link.b,
+        "peak_mutual_information": link.peak_information,
+        "generation": link.generation,
+        "fitted_on": link.fitted_on,
+        "g": link.g,
+        "df": link.df,
+        "p_value": link.p_value,
+        "p_adjusted": link.p_adjusted,
+        "generations_linked": link.generations_linked,
+    }
 
 
 def _pair_record(explanation: Explanation, pair: PairFinding) -> dict:
     return {
-        "a": pair.names[0], "b": pair.names[1], "a_index": pair.a, "b_index": pair.b,
-        "a_value": pair.values[0], "b_value": pair.values[1], "contrast": pair.contrast, "se": pair.se,
-        "interval": list(pair.interval), "cells_vs_neither": {"only_a": pair.only_a, "only_b": pair.only_b,
-                                                              "both": pair.both},
-        "min_cell": pair.min_cell, "kind": pair.shape.kind, "only_together": pair.shape.only_together,
-        "one_or_other": pair.shape.one_or_other, "helps_alone": list(pair.shape.helps_alone),
+        "a": pair.names[0],
+        "b": pair.names[1],
+        "a_index": pair.a,
+        "b_index": pair.b,
+        "a_value": pair.values[0],
+        "b_value": pair.values[1],
+        "contrast": pair.contrast,
+        "se": pair.se,
+        "interval": list(pair.interval),
+        "cells_vs_neither": {"only_a": pair.only_a, "only_b": pair.only_b, "both": pair.both},
+        "min_cell": pair.min_cell,
+        "kind": pair.shape.kind,
+        "only_together": pair.shape.only_together,
+        "one_or_other": pair.shape.one_or_other,
+        "helps_alone": list(pair.shape.helps_alone),
         "best_cell": pair.shape.best_cell,
         "sentence": _sentence(explanation, pair, code=False),
         "link": _link_record(pair.link) if pair.link is not None else None,
     }
 
 
-def to_document(explanation: Explanation, pictures: Optional[Mapping[str, Path]] = None,
-                pictures_note: Optional[str] = None) -> dict:
+def to_document(
+    explanation: Explanation, pictures: Optional[Mapping[str, Path]] = None, pictures_note: Optional[str] = None
+) -> dict:
     """The report as a JSON-friendly dict (no NaN: missing numbers are ``null``)."""
     data = explanation.data
     return {
         "format": FORMAT,
         "run": {
-            "folder": str(data.path), "problem": data.problem, "goal": data.goal, "method": data.method,
-            "evaluations": int(data.scores.shape[0]), "scored": explanation.finite_count,
-            "generations": int(data.generation.max()) + 1, "finished": data.finished,
-            "stop_reason": (data.result or {}).get("stop_reason"), "best_score": explanation.best_score,
+            "folder": str(data.path),
+            "problem": data.problem,
+            "goal": data.goal,
+            "method": data.method,
+            "evaluations": int(data.scores.shape[0]),
+            "scored": explanation.finite_count,
+            "generations": int(data.generation.max()) + 1,
+            "finished": data.finished,
+            "stop_reason": (data.result or {}).get("stop_reason"),
+            "best_score": explanation.best_score,
         },
         "definitions": {
             "best_candidates": "top 10% of the successfully scored candidates by score, at least 20",
             "frequency_interval": "95% Wilson score interval",
             "effect": "mean score with the favoured value minus without, within generations, pooled with "
-                      "weights 1/(1/n1 + 1/n0)",
+            "weights 1/(1/n1 + 1/n0)",
             "adjusted_effect": "least-squares coefficient of the favoured-value indicator with all settings "
-                               "fitted at once and one intercept per generation",
+            "fitted at once and one intercept per generation",
             "contrast": "mean(11) - mean(10) - mean(01) + mean(00) within generations, pooled with weights "
-                        "1/sum(1/n_cell); binary variables use the indicator of 1, others of their favoured value",
+            "1/sum(1/n_cell); binary variables use the indicator of 1, others of their favoured value",
             "p_value": "G-test, G = 2 N MI, chi-squared with (k_i - 1)(k_j - 1) degrees of freedom; p_adjusted "
-                       "is Bonferroni over all pairs and tree generations",
+            "is Bonferroni over all pairs and tree generations",
         },
         "best_candidates": explanation.best_count,
         "variables": [_variable_record(v) for v in explanation.variables],
@@ -408,15 +534,18 @@ def short_lines(explanation: Explanation) -> List[str]:
     ]
     width = max((len(v.name) for v in explanation.variables[:top]), default=0)
     for rank, v in enumerate(explanation.variables[:top], 1):
-        effect = (f"{_num(v.effect, signed=True)} ± {_num(_Z * v.effect_se, 2)}" if np.isfinite(v.effect)
-                  else "n/a")
-        lines.append(f"  {rank:>3}. {v.name:<{width}} = {v.favoured}  {_percent(v.frequency):>6} "
-                     f"[{_percent(v.interval[0])}, {_percent(v.interval[1])}]  {effect}  {_verdict(v)}")
+        effect = f"{_num(v.effect, signed=True)} ± {_num(_Z * v.effect_se, 2)}" if np.isfinite(v.effect) else "n/a"
+        lines.append(
+            f"  {rank:>3}. {v.name:<{width}} = {v.favoured}  {_percent(v.frequency):>6} "
+            f"[{_percent(v.interval[0])}, {_percent(v.interval[1])}]  {effect}  {_verdict(v)}"
+        )
     if explanation.pairs_available and explanation.clear_pairs:
         lines.append("strongest interactions (interaction ± 95%):")
         for rank, pair in enumerate(explanation.clear_pairs[:top], 1):
-            lines.append(f"  {rank:>3}. {_sentence(explanation, pair, code=False)}  "
-                         f"{_num(pair.contrast, signed=True)} ± {_num(_Z * pair.se, 2)}")
+            lines.append(
+                f"  {rank:>3}. {_sentence(explanation, pair, code=False)}  "
+                f"{_num(pair.contrast, signed=True)} ± {_num(_Z * pair.se, 2)}"
+            )
     elif explanation.pairs_available:
         lines.append(f"interactions: no pair stands out among the {explanation.pairs_tested:,} compared")
     else:
@@ -434,8 +563,12 @@ def short_lines(explanation: Explanation) -> List[str]:
     return lines
 
 
-def write_reports(explanation: Explanation, pictures: Optional[Mapping[str, Path]] = None,
-                  pictures_note: Optional[str] = None, folder=None) -> Dict[str, Path]:
+def write_reports(
+    explanation: Explanation,
+    pictures: Optional[Mapping[str, Path]] = None,
+    pictures_note: Optional[str] = None,
+    folder=None,
+) -> Dict[str, Path]:
     """Write ``explain.md`` and ``explain.json`` into ``folder`` (the run folder by default), atomically."""
     folder = Path(folder) if folder is not None else explanation.data.path
     written = {}

@@ -8,8 +8,19 @@ from optim.methods.hillclimb import HillClimber
 from optim.methods.ladder import PopulationLadder
 from optim.methods.random_search import RandomSearch
 
-__all__ = ["Method", "StepOutcome", "DistributionSearch", "HillClimber", "PopulationLadder", "RandomSearch",
-           "METHODS", "AUTO", "AUTO_STEP", "make_method", "truncation_select"]
+__all__ = [
+    "Method",
+    "StepOutcome",
+    "DistributionSearch",
+    "HillClimber",
+    "PopulationLadder",
+    "RandomSearch",
+    "METHODS",
+    "AUTO",
+    "AUTO_STEP",
+    "make_method",
+    "truncation_select",
+]
 
 #: The method names a run config accepts.
 METHODS = ("tree", "forest", "univariate", "hillclimb", "random")
@@ -20,8 +31,17 @@ AUTO = "auto"
 AUTO_STEP = 100
 
 
-def make_method(name: str, problem, rng, population: Union[int, str], select: float = 0.5, prior: float = 1.0,
-                elitism: bool = True, alpha: float = 0.01, lookahead: int = 1) -> Method:
+def make_method(
+    name: str,
+    problem,
+    rng,
+    population: Union[int, str],
+    select: float = 0.5,
+    prior: float = 1.0,
+    elitism: bool = True,
+    alpha: float = 0.01,
+    lookahead: int = 1,
+) -> Method:
     """Build a method by name; an unknown name raises ``ValueError`` listing the valid ones.
 
     ``population="auto"`` gives the model-based methods a :class:`PopulationLadder` and the others
@@ -31,12 +51,12 @@ def make_method(name: str, problem, rng, population: Union[int, str], select: fl
         if population != AUTO:
             raise ValueError(f"The population must be a whole number >= 2 or {AUTO!r}. Got {population!r} instead.")
         if name in ("tree", "forest", "univariate"):
-            return PopulationLadder(problem, rng, model=name, select=select, prior=prior, elitism=elitism,
-                                    alpha=alpha)
+            return PopulationLadder(problem, rng, model=name, select=select, prior=prior, elitism=elitism, alpha=alpha)
         population = AUTO_STEP
     if name in ("tree", "forest", "univariate"):
-        return DistributionSearch(problem, rng, model=name, population=population, select=select, prior=prior,
-                                  elitism=elitism, alpha=alpha)
+        return DistributionSearch(
+            problem, rng, model=name, population=population, select=select, prior=prior, elitism=elitism, alpha=alpha
+        )
     if name == "hillclimb":
         return HillClimber(problem, rng, population=population, lookahead=lookahead)
     if name == "random":

@@ -23,7 +23,7 @@ def truncation_select(fitness: np.ndarray, fraction: float) -> np.ndarray:
     H. Mühlenbein and D. Schlierkamp-Voosen, "Predictive models for the breeder
     genetic algorithm", Evolutionary Computation 1(1), 1993 (truncation selection).
     """
-    return np.argsort(-fitness, kind="stable")[:survivor_count(fitness.shape[0], fraction)]
+    return np.argsort(-fitness, kind="stable")[: survivor_count(fitness.shape[0], fraction)]
 
 
 def survivor_count(count: int, fraction: float) -> int:

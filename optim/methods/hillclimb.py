@@ -90,7 +90,7 @@ class HillClimber(Method):
                 continue
             remaining = self.order.shape[0] - self.position
             width = min(remaining, limit - used, batch if speculative else self.lookahead)
-            moves = self.order[self.position:self.position + width]
+            moves = self.order[self.position : self.position + width]
             X = self._neighbours(moves)
             f = fitness(X)
             better = np.flatnonzero(f > self.current_fitness)

@@ -81,17 +81,31 @@ class PopulationLadder(Method):
     G. R. Harik and F. G. Lobo, "A parameter-less genetic algorithm", GECCO 1999.
     """
 
-    def __init__(self, problem, rng, model: str = "tree", select: float = 0.5, prior: float = 1.0,
-                 elitism: bool = True, alpha: float = 0.01, smallest: int = SMALLEST_POPULATION,
-                 stall: int = STALL_GENERATIONS, window: int = RATE_WINDOW, rate: float = SLOW_RATE):
+    def __init__(
+        self,
+        problem,
+        rng,
+        model: str = "tree",
+        select: float = 0.5,
+        prior: float = 1.0,
+        elitism: bool = True,
+        alpha: float = 0.01,
+        smallest: int = SMALLEST_POPULATION,
+        stall: int = STALL_GENERATIONS,
+        window: int = RATE_WINDOW,
+        rate: float = SLOW_RATE,
+    ):
         super().__init__(problem, rng)
         for name, value, least in (("smallest", smallest, 4), ("stall", stall, 1), ("window", window, 1)):
             if isinstance(value, bool) or int(value) != value or value < least:
-                raise ValueError(f"The {name!r} parameter of PopulationLadder must be a whole number >= {least}. "
-                                 f"Got {value!r} instead.")
+                raise ValueError(
+                    f"The {name!r} parameter of PopulationLadder must be a whole number >= {least}. "
+                    f"Got {value!r} instead."
+                )
         if isinstance(rate, bool) or not 0.0 <= float(rate) < 1.0:
-            raise ValueError(f"The 'rate' parameter of PopulationLadder must be a number in [0, 1). "
-                             f"Got {rate!r} instead.")
+            raise ValueError(
+                f"The 'rate' parameter of PopulationLadder must be a number in [0, 1). Got {rate!r} instead."
+            )
         self.name = model
         self.model_kind = model
         self.select, self.prior, self.elitism, self.alpha = float(select), float(prior), bool(elitism), alpha
@@ -119,7 +133,7 @@ class PopulationLadder(Method):
             return "converged"
         if self.stale >= self.stall:
             return "stalled"
-        recent = self.rates[-self.window:]
+        recent = self.rates[-self.window :]
         if self.rate > 0 and len(recent) == self.window and float(np.mean(recent)) < self.rate:
             return "slow"
         return None
@@ -128,8 +142,16 @@ class PopulationLadder(Method):
         if self.run is not None:
             self.rungs[-1]["ending"] = reason
         population = self._next_population()
-        self.run = DistributionSearch(self.problem, self.rng, model=self.model_kind, population=population,
-                                      select=self.select, prior=self.prior, elitism=self.elitism, alpha=self.alpha)
+        self.run = DistributionSearch(
+            self.problem,
+            self.rng,
+            model=self.model_kind,
+            population=population,
+            select=self.select,
+            prior=self.prior,
+            elitism=self.elitism,
+            alpha=self.alpha,
+        )
         self.rungs.append({"population": population, "evaluations": 0, "ending": "live"})
         self.survivor_mean, self.stale, self.rates = -np.inf, 0, []
 
@@ -150,7 +172,7 @@ class PopulationLadder(Method):
             self.stale += 1
         if self.elitism and carried > 0 and drawn > 0:
             self.rates.append(float(np.count_nonzero(kept >= carried)) / drawn)
-            del self.rates[:-self.window]
+            del self.rates[: -self.window]
 
     # -- the Method interface ---------------------------------------------------------------------
     def step(self, fitness, budget):
@@ -204,13 +226,24 @@ class PopulationLadder(Method):
         self.survivor_mean = float(np.asarray(state["survivor_mean"], dtype=np.float64).reshape(-1)[0])
         self.stale = int(state["stale"])
         self.rates = [float(r) for r in np.asarray(state["rates"]).tolist()]
-        self.rungs = [{"population": int(p), "evaluations": int(e), "ending": ENDINGS[int(k)]}
-                      for p, e, k in zip(np.asarray(state["rung_populations"]).tolist(),
-                                         np.asarray(state["rung_evaluations"]).tolist(),
-                                         np.asarray(state["rung_endings"]).tolist())]
+        self.rungs = [
+            {"population": int(p), "evaluations": int(e), "ending": ENDINGS[int(k)]}
+            for p, e, k in zip(
+                np.asarray(state["rung_populations"]).tolist(),
+                np.asarray(state["rung_evaluations"]).tolist(),
+                np.asarray(state["rung_endings"]).tolist(),
+            )
+        ]
         self.run = None
         if "run" in state:
-            self.run = DistributionSearch(self.problem, self.rng, model=self.model_kind,
-                                          population=self.rungs[-1]["population"], select=self.select,
-                                          prior=self.prior, elitism=self.elitism, alpha=self.alpha)
+            self.run = DistributionSearch(
+                self.problem,
+                self.rng,
+                model=self.model_kind,
+                population=self.rungs[-1]["population"],
+                select=self.select,
+                prior=self.prior,
+                elitism=self.elitism,
+                alpha=self.alpha,
+            )
             self.run.set_state(state["run"])

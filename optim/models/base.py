@@ -17,9 +17,7 @@ def validate_samples(X, cardinality: Optional[np.ndarray], owner: str) -> np.nda
     """Check that ``X`` is a non-empty 2-D array of values within ``cardinality``."""
     X = np.asarray(X)
     if X.ndim != 2:
-        raise ValueError(
-            f"The samples given to {owner} must be a 2-D array (count, n). Got shape {X.shape} instead."
-        )
+        raise ValueError(f"The samples given to {owner} must be a 2-D array (count, n). Got shape {X.shape} instead.")
     if X.shape[0] == 0:
         raise ValueError(f"The samples given to {owner} must contain at least one row.")
     if not np.issubdtype(X.dtype, np.integer):
@@ -38,8 +36,7 @@ def validate_samples(X, cardinality: Optional[np.ndarray], owner: str) -> np.nda
     if cardinality is not None:
         if X.shape[1] != cardinality.shape[0]:
             raise ValueError(
-                f"The samples given to {owner} must have {cardinality.shape[0]} columns. "
-                f"Got {X.shape[1]} instead."
+                f"The samples given to {owner} must have {cardinality.shape[0]} columns. Got {X.shape[1]} instead."
             )
         too_big = X.max(axis=0) >= cardinality
         if np.any(too_big):
@@ -58,13 +55,10 @@ def validate_weights(weights, count: int, owner: str) -> Optional[np.ndarray]:
     w = np.asarray(weights, dtype=np.float64).reshape(-1)
     if w.shape[0] != count:
         raise ValueError(
-            f"The 'weights' parameter of {owner} must have one entry per sample ({count}). "
-            f"Got {w.shape[0]} instead."
+            f"The 'weights' parameter of {owner} must have one entry per sample ({count}). Got {w.shape[0]} instead."
         )
     if not np.all(np.isfinite(w)) or np.any(w < 0) or w.sum() <= 0:
-        raise ValueError(
-            f"The 'weights' parameter of {owner} must hold finite non-negative numbers, not all zero."
-        )
+        raise ValueError(f"The 'weights' parameter of {owner} must hold finite non-negative numbers, not all zero.")
     return w
 
 
@@ -83,8 +77,7 @@ class Model(abc.ABC):
     def __init__(self, cardinality=None, prior: float = 1.0):
         if not isinstance(prior, numbers.Real) or not np.isfinite(prior) or prior < 0:
             raise ValueError(
-                f"The 'prior' parameter of {type(self).__name__} must be a non-negative number. "
-                f"Got {prior!r} instead."
+                f"The 'prior' parameter of {type(self).__name__} must be a non-negative number. Got {prior!r} instead."
             )
         self.prior = float(prior)
         self._given_cardinality = cardinality

@@ -24,8 +24,7 @@ def _check_weight_matrix(weights, caller: str):
         matrix = np.asarray(weights, dtype=np.float64)
     except (TypeError, ValueError):
         raise ValueError(
-            f"The 'weights' parameter of {caller} must be a square array of numbers. "
-            f"Got {weights!r} instead."
+            f"The 'weights' parameter of {caller} must be a square array of numbers. Got {weights!r} instead."
         ) from None
     if matrix.ndim != 2 or matrix.shape[0] != matrix.shape[1] or matrix.shape[0] == 0:
         raise ValueError(
@@ -62,8 +61,7 @@ def _check_parents(parents, caller: str) -> np.ndarray:
     arr = np.asarray(parents)
     if arr.ndim != 1 or arr.shape[0] == 0 or not np.issubdtype(arr.dtype, np.integer):
         raise ValueError(
-            f"The 'parents' parameter of {caller} must be a non-empty 1-D array of integers. "
-            f"Got {parents!r} instead."
+            f"The 'parents' parameter of {caller} must be a non-empty 1-D array of integers. Got {parents!r} instead."
         )
     arr = arr.astype(np.int64)
     n = arr.shape[0]
@@ -130,9 +128,7 @@ def maximum_spanning_tree(weights, root=0):
     matrix, exact = _check_weight_matrix(weights, caller)
     n = matrix.shape[0]
     if isinstance(root, (bool, np.bool_)) or not isinstance(root, numbers.Integral) or not 0 <= root < n:
-        raise ValueError(
-            f"The 'root' parameter of {caller} must be a node index in 0..{n - 1}. Got {root!r} instead."
-        )
+        raise ValueError(f"The 'root' parameter of {caller} must be a node index in 0..{n - 1}. Got {root!r} instead.")
     if exact and matrix.view(np.int64).min() >= 0:  # no sign bit anywhere: no negative, no -0.0
         return _prim_nonnegative(matrix, int(root))
     return _prim(matrix, int(root))

@@ -128,8 +128,9 @@ class DependencyTree(Model):
         """Hook for subclasses that drop edges; the tree keeps every edge."""
         return parents
 
-    def _edge_counts(self, X: np.ndarray, w: Optional[np.ndarray], parents: np.ndarray,
-                     pair_ones: Optional[np.ndarray] = None) -> np.ndarray:
+    def _edge_counts(
+        self, X: np.ndarray, w: Optional[np.ndarray], parents: np.ndarray, pair_ones: Optional[np.ndarray] = None
+    ) -> np.ndarray:
         """Joint counts ``[i, value of parent, value of i]`` for every variable and its tree parent.
 
         For the root the "parent" is the root itself, so only the diagonal is filled.

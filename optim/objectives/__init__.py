@@ -7,7 +7,14 @@ scheduling families of :mod:`optim_problems` are imported only when first used);
 candidates by running an external program.
 """
 
-from optim.objectives.loader import REQUIRED, FactoryParameter, ProblemError, build_problem, factory_parameters, load_object
+from optim.objectives.loader import (
+    REQUIRED,
+    FactoryParameter,
+    ProblemError,
+    build_problem,
+    factory_parameters,
+    load_object,
+)
 from optim.objectives.registry import PROBLEMS, available, get_factory, make_problem
 
 __all__ = [

@@ -245,7 +245,7 @@ def elf_sections(path) -> List[ElfSection]:
     _, _, _, names_offset, names_size, _ = headers[shstrndx]
     if names_offset + names_size > len(data):
         raise bad("the section-name table lies outside the file")
-    names = data[names_offset:names_offset + names_size]
+    names = data[names_offset : names_offset + names_size]
     sections = []
     for index, (name_at, kind, flags, _offset, size, _link) in enumerate(headers):
         end = names.find(b"\0", name_at)
@@ -264,6 +264,7 @@ def elf_code_size(path) -> int:
 
 
 # -------------------------------------------------------------------------- reading the score
+
 
 def _number_from_text(text: str, what: str) -> float:
     try:
@@ -293,17 +294,20 @@ class _ScoreReader:
     def __init__(self, spec, config_dir: Path):
         if not isinstance(spec, Mapping):
             raise ValueError(
-                f"score: expected a mapping such as {{file_size: out.o}} or {{regex: 'size=(\\d+)'}}; "
-                f"found {spec!r}"
+                f"score: expected a mapping such as {{file_size: out.o}} or {{regex: 'size=(\\d+)'}}; found {spec!r}"
             )
         modes = [key for key in spec if key in SCORE_MODES]
         others = [key for key in spec if key not in SCORE_MODES and key != "stream"]
         if others:
-            raise ValueError(f"score: unknown key {others[0]!r}; expected one of {', '.join(SCORE_MODES)} "
-                             f"(and 'stream' with regex or last_number)")
+            raise ValueError(
+                f"score: unknown key {others[0]!r}; expected one of {', '.join(SCORE_MODES)} "
+                f"(and 'stream' with regex or last_number)"
+            )
         if len(modes) != 1:
-            raise ValueError(f"score: expected exactly one of {', '.join(SCORE_MODES)}; found "
-                             f"{', '.join(modes) if modes else 'none'}")
+            raise ValueError(
+                f"score: expected exactly one of {', '.join(SCORE_MODES)}; found "
+                f"{', '.join(modes) if modes else 'none'}"
+            )
         self.mode = modes[0]
         value = spec[self.mode]
         self.config_dir = config_dir
@@ -328,8 +332,9 @@ class _ScoreReader:
                 raise ValueError(f"score.last_number: expected true; found {value!r}")
         else:
             if not isinstance(value, Mapping) or "key" not in value or set(value) - {"key", "file"}:
-                raise ValueError(f"score.json: expected a mapping {{key: KEY}} or {{key: KEY, file: PATH}}; "
-                                 f"found {value!r}")
+                raise ValueError(
+                    f"score.json: expected a mapping {{key: KEY}} or {{key: KEY, file: PATH}}; found {value!r}"
+                )
             self.key = _plain_text(value["key"], "score.json.key", "a key such as size or timing.median")
             if "file" in value:
                 self.file = _plain_text(value["file"], "score.json.file", "a file path")
@@ -370,8 +375,9 @@ class _ScoreReader:
         if self.mode == "regex":
             match = self.pattern.search(text)
             if match is None:
-                raise EvaluationFailure("no-score", f"no match of '{self.pattern.pattern}' in {self.stream}"
-                                                    f"{_quote_tail(text)}")
+                raise EvaluationFailure(
+                    "no-score", f"no match of '{self.pattern.pattern}' in {self.stream}{_quote_tail(text)}"
+                )
             found = match.group(1) if self.pattern.groups else match.group(0)
             return _number_from_text(found or "", f"the match of '{self.pattern.pattern}'")
         if self.mode == "last_number":
@@ -400,6 +406,7 @@ class _ScoreReader:
 
 # -------------------------------------------------------------------------- validating options
 
+
 def _plain_text(value, where: str, expected: str) -> str:
     if isinstance(value, bool) or not isinstance(value, (str, int, float)) or str(value) == "":
         raise ValueError(f"{where}: expected {expected}; found {value!r}")
@@ -426,14 +433,17 @@ def _parse_variables(variables) -> List[CommandVariable]:
     for index, entry in enumerate(variables):
         where = f"variables[{index}]"
         if not isinstance(entry, Mapping):
-            raise ValueError(f"{where}: expected a mapping {{name: NAME, values: [TEXT, ...]}} or {{flag: TEXT}}; "
-                             f"found {entry!r}")
+            raise ValueError(
+                f"{where}: expected a mapping {{name: NAME, values: [TEXT, ...]}} or {{flag: TEXT}}; found {entry!r}"
+            )
         unknown = set(entry) - {"name", "values", "flag"}
         if unknown:
             raise ValueError(f"{where}: unknown key {sorted(unknown)[0]!r}; expected name, values or flag")
         if ("values" in entry) == ("flag" in entry):
-            raise ValueError(f"{where}: give either 'values' (a list of texts) or 'flag' (one text), not "
-                             f"{'both' if 'values' in entry else 'neither'}")
+            raise ValueError(
+                f"{where}: give either 'values' (a list of texts) or 'flag' (one text), not "
+                f"{'both' if 'values' in entry else 'neither'}"
+            )
         if "flag" in entry:
             flag = _plain_text(entry["flag"], f"{where}.flag", "a non-empty text")
             values = ["", flag]
@@ -468,7 +478,7 @@ def _tokens(text: str, where: str, known) -> List[Tuple[str, str]]:
     position = 0
     for match in _PLACEHOLDER.finditer(text):
         if match.start() > position:
-            pieces.append(("text", text[position:match.start()]))
+            pieces.append(("text", text[position : match.start()]))
         token = match.group(0)
         if token in ("{{", "}}"):
             pieces.append(("text", token[0]))
@@ -477,8 +487,10 @@ def _tokens(text: str, where: str, known) -> List[Tuple[str, str]]:
         else:
             name = match.group(1)
             if name not in known:
-                raise ValueError(f"{where}: unknown placeholder {{{name}}} in {text!r}; known: "
-                                 + ", ".join("{" + k + "}" for k in known))
+                raise ValueError(
+                    f"{where}: unknown placeholder {{{name}}} in {text!r}; known: "
+                    + ", ".join("{" + k + "}" for k in known)
+                )
             pieces.append(("field", name))
         position = match.end()
     if position < len(text):
@@ -500,8 +512,10 @@ def _parse_start(start, variables: List[CommandVariable]) -> Optional[np.ndarray
     if isinstance(start, np.ndarray):
         start = start.tolist()
     if not isinstance(start, (list, tuple)) or not start:
-        raise ValueError("start: expected a list of candidates (each a list of value indices, a text of digits, "
-                         "or a mapping from variable names to values)")
+        raise ValueError(
+            "start: expected a list of candidates (each a list of value indices, a text of digits, "
+            "or a mapping from variable names to values)"
+        )
     n = len(variables)
     by_name = {v.name: i for i, v in enumerate(variables)}
     rows = np.zeros((len(start), n), dtype=np.uint8)
@@ -517,8 +531,10 @@ def _parse_start(start, variables: List[CommandVariable]) -> Optional[np.ndarray
                 elif _is_index(value, len(variable.values)):
                     rows[r, by_name[name]] = int(value)
                 else:
-                    raise ValueError(f"{where}.{name}: expected a value index 0..{len(variable.values) - 1} or one "
-                                     f"of the texts {list(variable.values)}; found {value!r}")
+                    raise ValueError(
+                        f"{where}.{name}: expected a value index 0..{len(variable.values) - 1} or one "
+                        f"of the texts {list(variable.values)}; found {value!r}"
+                    )
             continue
         if isinstance(item, str):
             if not re.fullmatch(r"[0-9]*", item):
@@ -533,8 +549,9 @@ def _parse_start(start, variables: List[CommandVariable]) -> Optional[np.ndarray
         for i, value in enumerate(values):
             limit = len(variables[i].values)
             if not _is_index(value, limit):
-                raise ValueError(f"{where}[{i}] ({variables[i].name}): expected a value index 0..{limit - 1}; "
-                                 f"found {value!r}")
+                raise ValueError(
+                    f"{where}[{i}] ({variables[i].name}): expected a value index 0..{limit - 1}; found {value!r}"
+                )
             rows[r, i] = value
     return rows
 
@@ -567,6 +584,7 @@ def _kill_group(process: subprocess.Popen) -> None:
 
 
 # -------------------------------------------------------------------------- the problem
+
 
 class CommandProblem(Problem):
     """An objective scored by running an external command per candidate.
@@ -610,8 +628,12 @@ class CommandProblem(Problem):
         self.shell = shell
         self._template = self._parse_command(command)
         self.score = _ScoreReader(score, self.config_dir)
-        if timeout is not None and (isinstance(timeout, bool) or not isinstance(timeout, (int, float))
-                                    or not timeout > 0 or not math.isfinite(timeout)):
+        if timeout is not None and (
+            isinstance(timeout, bool)
+            or not isinstance(timeout, (int, float))
+            or not timeout > 0
+            or not math.isfinite(timeout)
+        ):
             raise ValueError(f"timeout: expected a positive number of seconds or null; found {timeout!r}")
         self.timeout = None if timeout is None else float(timeout)
         self.workdir = self._parse_workdir(workdir)
@@ -634,14 +656,15 @@ class CommandProblem(Problem):
     def _parse_command(self, command):
         if self.shell:
             if not isinstance(command, str) or not command.strip():
-                raise ValueError("command: with shell: true, expected one text (the shell script); "
-                                 f"found {command!r}")
+                raise ValueError(f"command: with shell: true, expected one text (the shell script); found {command!r}")
             pieces = _tokens(command, "command", _RESERVED + tuple(v.name for v in self.variables))
             for kind, value in pieces:
                 if kind == "field" and value not in ("config_dir", "workdir"):
-                    raise ValueError(f"command: with shell: true the candidate's arguments are the positional "
-                                     f"parameters; write \"$@\" instead of {{{value}}} (only {{config_dir}} and "
-                                     f"{{workdir}} may appear in the script)")
+                    raise ValueError(
+                        f"command: with shell: true the candidate's arguments are the positional "
+                        f'parameters; write "$@" instead of {{{value}}} (only {{config_dir}} and '
+                        f"{{workdir}} may appear in the script)"
+                    )
             return [pieces]
         if isinstance(command, str):
             command = list(_split(command, "command"))
@@ -655,10 +678,13 @@ class CommandProblem(Problem):
             if any(kind == "field" and value == "flags" for kind, value in pieces) and len(pieces) != 1:
                 raise ValueError(f"{where}: {{flags}} must be a whole argument on its own; found {argument!r}")
             template.append(pieces)
-        if not any(kind == "field" and value not in ("config_dir", "workdir")
-                   for pieces in template for kind, value in pieces):
-            raise ValueError("command: no placeholder takes the candidate's values; put {flags} (all variables) "
-                             "or {NAME} (one variable) among the arguments")
+        if not any(
+            kind == "field" and value not in ("config_dir", "workdir") for pieces in template for kind, value in pieces
+        ):
+            raise ValueError(
+                "command: no placeholder takes the candidate's values; put {flags} (all variables) "
+                "or {NAME} (one variable) among the arguments"
+            )
         return template
 
     def _parse_workdir(self, workdir) -> Optional[Path]:
@@ -668,8 +694,10 @@ class CommandProblem(Problem):
         path = Path(_fill_fixed(text, self.config_dir, self.config_dir, "workdir")).expanduser()
         path = path if path.is_absolute() else self.config_dir / path
         if not path.is_dir():
-            raise ValueError(f"workdir: the folder {path} does not exist (create it, or use null for a fresh "
-                             f"temporary folder per evaluation)")
+            raise ValueError(
+                f"workdir: the folder {path} does not exist (create it, or use null for a fresh "
+                f"temporary folder per evaluation)"
+            )
         return path
 
     @staticmethod
@@ -696,8 +724,11 @@ class CommandProblem(Problem):
             return  # the program depends on the candidate: a missing one is a 'launch' failure
         program = self._program("".join(v if k == "text" else str(self.config_dir) for k, v in pieces))
         if not _program_found(program):
-            raise ValueError(f"command: the program {program!r} was not found"
-                             + ("" if os.sep in program else " on PATH") + " or is not executable")
+            raise ValueError(
+                f"command: the program {program!r} was not found"
+                + ("" if os.sep in program else " on PATH")
+                + " or is not executable"
+            )
 
     def _program(self, text: str) -> str:
         path = Path(text).expanduser()
@@ -733,8 +764,9 @@ class CommandProblem(Problem):
         flags = [argument for v in self.variables for argument in chosen[v.name][1]]
         fixed = {"config_dir": str(self.config_dir), "workdir": str(folder)}
         if self.shell:
-            script = "".join(value if kind == "text" else shlex.quote(fixed[value])
-                             for kind, value in self._template[0])
+            script = "".join(
+                value if kind == "text" else shlex.quote(fixed[value]) for kind, value in self._template[0]
+            )
             return ["/bin/sh", "-c", script, "optim-command", *flags]
         args: List[str] = []
         for index, pieces in enumerate(self._template):
@@ -742,11 +774,11 @@ class CommandProblem(Problem):
                 name = pieces[0][1]
                 args.extend(flags if name == "flags" else chosen[name][1])
                 if index == 0 and not args:
-                    raise EvaluationFailure("launch", f"the program placeholder {{{name}}} is empty for this "
-                                                      f"candidate")
+                    raise EvaluationFailure("launch", f"the program placeholder {{{name}}} is empty for this candidate")
                 continue
-            text = "".join(value if kind == "text" else fixed.get(value, chosen.get(value, ("",))[0])
-                           for kind, value in pieces)
+            text = "".join(
+                value if kind == "text" else fixed.get(value, chosen.get(value, ("",))[0]) for kind, value in pieces
+            )
             args.append(text)
         if args:
             args[0] = self._program(args[0])
@@ -786,8 +818,13 @@ class CommandProblem(Problem):
         args = self.arguments(x, folder)
         try:
             process = subprocess.Popen(
-                args, cwd=str(folder), env=self.environment(folder), stdin=subprocess.DEVNULL,
-                stdout=subprocess.PIPE, stderr=subprocess.PIPE, start_new_session=True,
+                args,
+                cwd=str(folder),
+                env=self.environment(folder),
+                stdin=subprocess.DEVNULL,
+                stdout=subprocess.PIPE,
+                stderr=subprocess.PIPE,
+                start_new_session=True,
             )
         except OSError as exc:
             reason = exc.strerror or str(exc)
@@ -797,8 +834,9 @@ class CommandProblem(Problem):
         except subprocess.TimeoutExpired:
             _kill_group(process)
             process.communicate()
-            raise EvaluationFailure("timeout", f"the command ran longer than the {self.timeout:g} s timeout "
-                                               f"and was stopped") from None
+            raise EvaluationFailure(
+                "timeout", f"the command ran longer than the {self.timeout:g} s timeout and was stopped"
+            ) from None
         except BaseException:
             _kill_group(process)
             process.wait()
@@ -880,6 +918,15 @@ def command(
     CommandProblem
     """
     return CommandProblem(
-        command, variables, score, goal, timeout=timeout, workdir=workdir, env=env, start=start,
-        rerun=rerun, shell=shell, config_dir=config_dir,
+        command,
+        variables,
+        score,
+        goal,
+        timeout=timeout,
+        workdir=workdir,
+        env=env,
+        start=start,
+        rerun=rerun,
+        shell=shell,
+        config_dir=config_dir,
     )

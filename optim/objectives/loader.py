@@ -114,9 +114,7 @@ def _load_file(path: Path, attribute: str, use: str) -> Any:
         spec.loader.exec_module(module)
     except (Exception, SystemExit) as exc:
         sys.modules.pop(module_name, None)
-        raise ProblemError(
-            f"cannot import objective file {path}: {_describe_exception(exc, str(path))}"
-        ) from exc
+        raise ProblemError(f"cannot import objective file {path}: {_describe_exception(exc, str(path))}") from exc
     finally:
         if folder in sys.path:
             sys.path.remove(folder)
@@ -198,9 +196,7 @@ def _takes_var_keywords(signature: inspect.Signature) -> bool:
 
 def _required_positional(signature: inspect.Signature) -> int:
     kinds = (inspect.Parameter.POSITIONAL_ONLY, inspect.Parameter.POSITIONAL_OR_KEYWORD)
-    return sum(
-        1 for p in signature.parameters.values() if p.kind in kinds and p.default is inspect.Parameter.empty
-    )
+    return sum(1 for p in signature.parameters.values() if p.kind in kinds and p.default is inspect.Parameter.empty)
 
 
 def _is_objective_function(target: Callable, params: Mapping[str, Any]) -> bool:
@@ -243,9 +239,7 @@ def _check_factory_parameters(factory: Callable, params: Mapping[str, Any], labe
                 raise _unknown_parameter(key, accepted, label, hint)
     variadic = (inspect.Parameter.VAR_POSITIONAL, inspect.Parameter.VAR_KEYWORD)
     required = [
-        p.name
-        for p in signature.parameters.values()
-        if p.kind not in variadic and p.default is inspect.Parameter.empty
+        p.name for p in signature.parameters.values() if p.kind not in variadic and p.default is inspect.Parameter.empty
     ]
     missing = [name for name in required if name not in params]
     if missing:
@@ -253,8 +247,7 @@ def _check_factory_parameters(factory: Callable, params: Mapping[str, Any], labe
         if len(required) == 1 and "n" not in signature.parameters and not isinstance(factory, type):
             hint = "; if it is an objective function, give the number of variables as parameter 'n'"
         raise ProblemError(
-            f"missing parameter {missing[0]!r} for problem {label!r} "
-            f"(accepted: {', '.join(accepted) or 'none'}){hint}"
+            f"missing parameter {missing[0]!r} for problem {label!r} (accepted: {', '.join(accepted) or 'none'}){hint}"
         )
 
 
@@ -326,16 +319,12 @@ def build_problem(
     params = dict(params)
     if isinstance(target, Problem):
         if params:
-            raise ProblemError(
-                f"{label!r} is a ready-made Problem and takes no parameters; got {', '.join(params)}"
-            )
+            raise ProblemError(f"{label!r} is a ready-made Problem and takes no parameters; got {', '.join(params)}")
         return target
     if isinstance(target, type) and not issubclass(target, Problem):
         raise ProblemError(f"{label!r} is a class but not a subclass of Problem")
     if not callable(target):
-        raise ProblemError(
-            f"{label!r} is a {type(target).__name__}, not a Problem, a Problem subclass or a callable"
-        )
+        raise ProblemError(f"{label!r} is a {type(target).__name__}, not a Problem, a Problem subclass or a callable")
     if plain_functions and not isinstance(target, type) and _is_objective_function(target, params):
         return _wrap_objective(target, params, label)
     _check_factory_parameters(target, params, label)

@@ -155,14 +155,15 @@ def job_identity(problem: ProblemEntry, method: MethodEntry, seed_index: int) ->
 def job_seed(identity: str, root: int) -> Tuple[str, int]:
     """``(job id, run seed)`` of a job from its identity and the sweep's root entropy."""
     digest = hashlib.sha256(identity.encode("utf-8")).digest()
-    words = tuple(int.from_bytes(digest[i:i + 4], "little") for i in range(0, 16, 4))
+    words = tuple(int.from_bytes(digest[i : i + 4], "little") for i in range(0, 16, 4))
     sequence = np.random.SeedSequence(entropy=int(root), spawn_key=words)
     run_seed = int(sequence.generate_state(1, np.uint64)[0]) >> 1
     return digest.hex()[:16], run_seed
 
 
-def expand_jobs(problems: Sequence[ProblemEntry], methods: Sequence[MethodEntry], seeds: Sequence[int],
-                root: int) -> List[Job]:
+def expand_jobs(
+    problems: Sequence[ProblemEntry], methods: Sequence[MethodEntry], seeds: Sequence[int], root: int
+) -> List[Job]:
     """Every (problem, method, seed index) job, problems outermost, with ids and seeds."""
     jobs = []
     for problem, method, seed_index in itertools.product(problems, methods, seeds):
@@ -174,20 +175,29 @@ def expand_jobs(problems: Sequence[ProblemEntry], methods: Sequence[MethodEntry]
 # -- validation ---------------------------------------------------------------------------------
 def _parse_problems(checker: Checker, data, check_problem: bool) -> List[ProblemEntry]:
     if not isinstance(data, list) or not data:
-        checker.fail(("problems",), "expected a non-empty list of problems, each like a run config's "
-                                    "'problem' (e.g. '- {use: onemax, n: 100}')")
+        checker.fail(
+            ("problems",),
+            "expected a non-empty list of problems, each like a run config's "
+            "'problem' (e.g. '- {use: onemax, n: 100}')",
+        )
     entries = []
     for index, raw in enumerate(data):
         path = ("problems", str(index))
         problem = dict(checker.mapping(raw, path))
         if "use" not in problem:
-            checker.fail(path, "each problem needs a 'use' key naming a registered problem, "
-                               "a 'path/to/file.py:callable' or a 'package.module:callable'")
+            checker.fail(
+                path,
+                "each problem needs a 'use' key naming a registered problem, "
+                "a 'path/to/file.py:callable' or a 'package.module:callable'",
+            )
         use = checker.value(text, problem["use"], path + ("use",)).strip()
         for key, value in problem.items():
             if isinstance(value, str) and _E_NOTATION.match(value.strip()):
-                checker.fail(path + (key,), f"found the text {value!r} (YAML reads e-notation without a decimal "
-                                            f"point as text; write it out, e.g. 100000, or as 1.0e+5)")
+                checker.fail(
+                    path + (key,),
+                    f"found the text {value!r} (YAML reads e-notation without a decimal "
+                    f"point as text; write it out, e.g. 100000, or as 1.0e+5)",
+                )
         if check_problem:
             check_problem_parameters(checker, problem, path, extra_keys=("label",))
         label = checker.value(text, problem["label"], path + ("label",)) if "label" in problem else None
@@ -202,8 +212,11 @@ def _parse_problems(checker: Checker, data, check_problem: bool) -> List[Problem
         problem = ProblemEntry(label, use, params)
         spec = json.dumps(problem.spec(), sort_keys=True)
         if spec in specs:
-            checker.fail(path, f"this is the same problem as {problems[specs.index(spec)].label!r} "
-                               f"(each problem must differ in 'use' or in a parameter)")
+            checker.fail(
+                path,
+                f"this is the same problem as {problems[specs.index(spec)].label!r} "
+                f"(each problem must differ in 'use' or in a parameter)",
+            )
         problems.append(problem)
         specs.append(spec)
         _check_unique(checker, [p.label for p in problems], path, "problem label")
@@ -217,8 +230,11 @@ def _check_unique(checker: Checker, labels: List[str], path, what: str) -> None:
 
 def _parse_methods(checker: Checker, data) -> List[MethodEntry]:
     if not isinstance(data, list) or not data:
-        checker.fail(("methods",), "expected a non-empty list of methods, each like a run config's 'search' "
-                                   "(e.g. '- {method: tree, population: 1000}')")
+        checker.fail(
+            ("methods",),
+            "expected a non-empty list of methods, each like a run config's 'search' "
+            "(e.g. '- {method: tree, population: 1000}')",
+        )
     methods: List[MethodEntry] = []
     identities: List[str] = []
     for index, raw in enumerate(data):
@@ -244,14 +260,18 @@ def _parse_methods(checker: Checker, data) -> List[MethodEntry]:
         for combination in itertools.product(*[values for _, values, _ in axes]):
             settings = dict(zip([key for key, _, _ in axes], combination))
             parts = [] if label is None and method_is_grid else [label or settings["method"]]
-            parts += [settings[key] if key == "method" else f"{key}={settings[key]}"
-                      for key, _, is_grid in axes if is_grid]
+            parts += [
+                settings[key] if key == "method" else f"{key}={settings[key]}" for key, _, is_grid in axes if is_grid
+            ]
             method = MethodEntry(" ".join(parts), SearchSettings(**settings))
             identity = json.dumps(method.changed(), sort_keys=True)
             if identity in identities:
                 other = methods[identities.index(identity)].label
-                checker.fail(path, f"the settings of {method.label!r} are those of {other!r} "
-                                   f"(each method must differ in at least one setting)")
+                checker.fail(
+                    path,
+                    f"the settings of {method.label!r} are those of {other!r} "
+                    f"(each method must differ in at least one setting)",
+                )
             methods.append(method)
             identities.append(identity)
             _check_unique(checker, [m.label for m in methods], path, "method label")
@@ -289,17 +309,20 @@ def parse_sweep_config(doc: YamlDocument, path: Optional[Path] = None, check_pro
     for method in methods:
         population = method.settings.population
         if isinstance(population, int) and stop.evaluations < population:
-            checker.fail(("stop", "evaluations") if "evaluations" in stop_data else ("methods",),
-                         f"the evaluation budget ({stop.evaluations}) is smaller than one population "
-                         f"({method.settings.population}) of {method.label!r}")
+            checker.fail(
+                ("stop", "evaluations") if "evaluations" in stop_data else ("methods",),
+                f"the evaluation budget ({stop.evaluations}) is smaller than one population "
+                f"({method.settings.population}) of {method.label!r}",
+            )
 
     root = checker.value(integer(0), data.get("seed", 0), ("seed",))
     out = checker.value(text, data.get("out", "runs/sweeps"), ("out",))
     name = checker.value(text, data.get("name", path.stem if path is not None else "sweep"), ("name",))
     if re.search(r"[/\\\0]", name) or name in (".", ".."):
         checker.fail(("name",), f"expected a name usable as a folder name (no slashes); found {name!r}")
-    config = SweepConfig(name=name, problems=problems, methods=methods, seeds=seeds, stop=stop, seed=root,
-                         out=out, path=path)
+    config = SweepConfig(
+        name=name, problems=problems, methods=methods, seeds=seeds, stop=stop, seed=root, out=out, path=path
+    )
     config.jobs = expand_jobs(problems, methods, seeds, root)
     return config
 

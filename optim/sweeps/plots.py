@@ -19,8 +19,16 @@ import numpy as np
 from optim.errors import OptimError
 from optim.runs.folder import atomic_write
 
-__all__ = ["pyplot", "plots_available", "best_on_grid", "quartile_band", "ecdf_points", "convergence_plot",
-           "ecdf_plot", "save_figure"]
+__all__ = [
+    "pyplot",
+    "plots_available",
+    "best_on_grid",
+    "quartile_band",
+    "ecdf_points",
+    "convergence_plot",
+    "ecdf_plot",
+    "save_figure",
+]
 
 PLOT_EXTRA_HINT = "plots need matplotlib; install it with pip install 'optim[plot]'"
 
@@ -111,8 +119,13 @@ def save_figure(figure, path) -> Path:
     return path
 
 
-def convergence_plot(curves_by_method: Mapping[str, Sequence[Tuple[Sequence[int], Sequence[float]]]], path,
-                     title: str, goal: str = "maximize", target: Optional[float] = None) -> Path:
+def convergence_plot(
+    curves_by_method: Mapping[str, Sequence[Tuple[Sequence[int], Sequence[float]]]],
+    path,
+    title: str,
+    goal: str = "maximize",
+    target: Optional[float] = None,
+) -> Path:
     """Best score against evaluations: the median across seeds and its quartile band, one line per method."""
     plt = pyplot()
     figure, axes = plt.subplots(figsize=(6.4, 3.8))
@@ -120,7 +133,7 @@ def convergence_plot(curves_by_method: Mapping[str, Sequence[Tuple[Sequence[int]
         grid, quartiles = quartile_band(curves)
         if grid.size == 0:
             continue
-        line, = axes.step(grid, quartiles[1], where="post", label=label, linewidth=1.5)
+        (line,) = axes.step(grid, quartiles[1], where="post", label=label, linewidth=1.5)
         axes.fill_between(grid, quartiles[0], quartiles[2], step="post", alpha=0.2, color=line.get_color())
     if target is not None:
         axes.axhline(target, color="0.4", linestyle=":", linewidth=1, label="target")

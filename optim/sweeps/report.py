@@ -65,8 +65,9 @@ BOOTSTRAP_RESAMPLES = 2000
 
 
 # -- statistics -----------------------------------------------------------------------------------
-def bootstrap_mean_interval(values: Sequence[float], rng: np.random.Generator,
-                            resamples: int = BOOTSTRAP_RESAMPLES, level: float = 0.95) -> Tuple[float, float, float]:
+def bootstrap_mean_interval(
+    values: Sequence[float], rng: np.random.Generator, resamples: int = BOOTSTRAP_RESAMPLES, level: float = 0.95
+) -> Tuple[float, float, float]:
     """``(mean, low, high)``: the mean and its percentile-bootstrap interval (Efron & Tibshirani, 1993).
 
     The ``resamples`` resamples (with replacement, of the same size) are drawn
@@ -92,8 +93,9 @@ def expected_running_time(records: Sequence[dict]) -> float:
 
 def penalised_evaluations(records: Sequence[dict], budget: int) -> np.ndarray:
     """Evaluations to target per run, ``budget + 1`` for a run that missed it (worse than any success)."""
-    return np.asarray([r["evaluations_to_target"] if r["hit_target"] else budget + 1 for r in records],
-                      dtype=np.float64)
+    return np.asarray(
+        [r["evaluations_to_target"] if r["hit_target"] else budget + 1 for r in records], dtype=np.float64
+    )
 
 
 def vargha_delaney_a(x: Sequence[float], y: Sequence[float]) -> float:
@@ -154,8 +156,9 @@ def _cell_rng(problem: str, method: str, seed: int) -> np.random.Generator:
     return np.random.default_rng(np.random.SeedSequence(words))
 
 
-def summarize(problem: str, method: str, records: Sequence[dict], seed: int = 0,
-              resamples: int = BOOTSTRAP_RESAMPLES) -> CellSummary:
+def summarize(
+    problem: str, method: str, records: Sequence[dict], seed: int = 0, resamples: int = BOOTSTRAP_RESAMPLES
+) -> CellSummary:
     """The statistics of one cell; the bootstrap stream depends on the labels and ``seed`` only."""
     hits = np.asarray([r["evaluations_to_target"] for r in records if r["hit_target"]], dtype=np.float64)
     q1 = median = q3 = None
@@ -163,12 +166,14 @@ def summarize(problem: str, method: str, records: Sequence[dict], seed: int = 0,
         q1, median, q3 = (float(v) for v in np.percentile(hits, [25, 50, 75]))
     scores = [r["best_score"] for r in records if r["best_score"] is not None]
     mean, low, high = bootstrap_mean_interval(scores, _cell_rng(problem, method, seed), resamples)
-    return CellSummary(problem, method, len(records), int(hits.size), median, q1, q3,
-                       expected_running_time(records), mean, low, high)
+    return CellSummary(
+        problem, method, len(records), int(hits.size), median, q1, q3, expected_running_time(records), mean, low, high
+    )
 
 
-def compare(problem: str, baseline: str, baseline_records: Sequence[dict], method: str,
-            records: Sequence[dict], budget: int) -> Comparison:
+def compare(
+    problem: str, baseline: str, baseline_records: Sequence[dict], method: str, records: Sequence[dict], budget: int
+) -> Comparison:
     """Mann-Whitney U and Vargha-Delaney A of the baseline against ``method`` on evaluations to target."""
     x = penalised_evaluations(baseline_records, budget)
     y = penalised_evaluations(records, budget)
@@ -214,8 +219,7 @@ def load_sweep(folder) -> SweepData:
         doc.data.pop("version", None)
     config = parse_sweep_config(doc, path=config_path.resolve(), check_problem=False)
     labels = {job.job: (job.problem.label, job.method.label) for job in config.jobs}
-    cells: Dict[Tuple[str, str], List[dict]] = {(p.label, m.label): [] for p in config.problems
-                                                for m in config.methods}
+    cells: Dict[Tuple[str, str], List[dict]] = {(p.label, m.label): [] for p in config.problems for m in config.methods}
     left_out = 0
     for record in store.records():
         key = labels.get(record.get("job"))
@@ -267,17 +271,29 @@ def _markdown_table(header: Sequence[str], rows: Sequence[Sequence[str]], right_
 
 def results_table(summaries: Sequence[CellSummary]) -> str:
     """The main table (Markdown)."""
-    header = ["problem", "method", "successes", "median evals to target", "IQR", "ERT", "mean final best",
-              "95% CI"]
-    rows = [[s.problem, s.method, f"{s.successes}/{s.runs}", _count(s.median), _count(s.iqr), _count(s.ert),
-             _score(s.mean_best), f"[{_score(s.ci_low)}, {_score(s.ci_high)}]"] for s in summaries]
+    header = ["problem", "method", "successes", "median evals to target", "IQR", "ERT", "mean final best", "95% CI"]
+    rows = [
+        [
+            s.problem,
+            s.method,
+            f"{s.successes}/{s.runs}",
+            _count(s.median),
+            _count(s.iqr),
+            _count(s.ert),
+            _score(s.mean_best),
+            f"[{_score(s.ci_low)}, {_score(s.ci_high)}]",
+        ]
+        for s in summaries
+    ]
     return _markdown_table(header, rows)
 
 
 def comparisons_table(comparisons: Sequence[Comparison]) -> str:
     header = ["problem", "method", "Mann-Whitney p", f"A ({comparisons[0].baseline} faster)" if comparisons else "A"]
-    rows = [[c.problem, c.method, _p(c.p_value), "–" if math.isnan(c.a_statistic) else f"{c.a_statistic:.2f}"]
-            for c in comparisons]
+    rows = [
+        [c.problem, c.method, _p(c.p_value), "–" if math.isnan(c.a_statistic) else f"{c.a_statistic:.2f}"]
+        for c in comparisons
+    ]
     return _markdown_table(header, rows)
 
 
@@ -309,7 +325,9 @@ def _plot_problem(data: SweepData, index: int, problem, plots_dir: Path) -> List
     paths = [convergence_plot(curves, plots_dir / f"{slug}-best.png", problem.label, first["goal"], first["target"])]
     if first["target"] is not None:
         evaluations = {m: [r["evaluations_to_target"] for r in records] for m, records in cells.items()}
-        paths.append(ecdf_plot(evaluations, plots_dir / f"{slug}-ecdf.png", problem.label, data.config.stop.evaluations))
+        paths.append(
+            ecdf_plot(evaluations, plots_dir / f"{slug}-ecdf.png", problem.label, data.config.stop.evaluations)
+        )
     return paths
 
 
@@ -318,14 +336,25 @@ def write_report(folder, baseline: Optional[str] = None, plots: bool = True, see
     data = load_sweep(folder)
     config = data.config
     base = _choose_baseline(config, baseline)
-    summaries = [summarize(p.label, m.label, data.cells[(p.label, m.label)], seed)
-                 for p in config.problems for m in config.methods]
+    summaries = [
+        summarize(p.label, m.label, data.cells[(p.label, m.label)], seed)
+        for p in config.problems
+        for m in config.methods
+    ]
     comparisons = []
     for problem in config.problems:
         for method in config.methods:
             if method.label != base:
-                comparisons.append(compare(problem.label, base, data.cells[(problem.label, base)], method.label,
-                                           data.cells[(problem.label, method.label)], config.stop.evaluations))
+                comparisons.append(
+                    compare(
+                        problem.label,
+                        base,
+                        data.cells[(problem.label, base)],
+                        method.label,
+                        data.cells[(problem.label, method.label)],
+                        config.stop.evaluations,
+                    )
+                )
     notes = []
     if data.left_out:
         notes.append(f"{data.left_out} records of jobs that are no longer in sweep.yaml were left out.")
@@ -347,14 +376,25 @@ def write_report(folder, baseline: Optional[str] = None, plots: bool = True, see
     return SweepReport(path, table, summaries, comparisons, base, written, notes)
 
 
-def _report_text(data: SweepData, baseline: Optional[str], table: str, comparisons: Sequence[Comparison],
-                 plots: Sequence[Path], notes: Sequence[str]) -> str:
+def _report_text(
+    data: SweepData,
+    baseline: Optional[str],
+    table: str,
+    comparisons: Sequence[Comparison],
+    plots: Sequence[Path],
+    notes: Sequence[str],
+) -> str:
     config = data.config
     records = data.records
     expected = len(config.jobs)
     target = config.stop.target
-    target_text = ("each problem's known optimum" if target == "optimum"
-                   else "none" if target is None else f"a score of {target:g}")
+    target_text = (
+        "each problem's known optimum"
+        if target == "optimum"
+        else "none"
+        if target is None
+        else f"a score of {target:g}"
+    )
     lines = [
         f"# Sweep report: {config.name}",
         "",
@@ -392,4 +432,3 @@ def _report_text(data: SweepData, baseline: Optional[str], table: str, compariso
     if notes:
         lines += ["## Notes", ""] + [f"- {note}" for note in notes] + [""]
     return "\n".join(lines)
-

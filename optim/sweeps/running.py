@@ -137,13 +137,15 @@ class SweepStore:
         if stored.get("seed") != resolved["seed"]:
             raise RunFolderError(
                 f"{where}: the finished jobs here used the root seed {stored.get('seed')!r}, the config now "
-                f"says {resolved['seed']!r}; use another --out or name, or restore the seed")
+                f"says {resolved['seed']!r}; use another --out or name, or restore the seed"
+            )
         old_stop, new_stop = stored.get("stop") or {}, resolved["stop"]
         for key in sorted(set(old_stop) & set(new_stop)):
             if old_stop[key] != new_stop[key]:
                 raise RunFolderError(
                     f"{where}: the finished jobs here used stop.{key} = {old_stop[key]!r}, the config now says "
-                    f"{new_stop[key]!r}; use another --out or name, or restore the stop rules")
+                    f"{new_stop[key]!r}; use another --out or name, or restore the stop rules"
+                )
 
     def _cut_torn_line(self) -> None:
         path = self.results_path
@@ -278,14 +280,19 @@ def _dask_client(dask, workers: int):
     try:
         import distributed
     except ImportError:
-        raise OptimError("running on Dask needs dask and distributed; install them with "
-                         "pip install 'optim[cluster]'") from None
+        raise OptimError(
+            "running on Dask needs dask and distributed; install them with pip install 'optim[cluster]'"
+        ) from None
     if isinstance(dask, distributed.Client):
         yield dask
         return
     if dask == "local":
-        with distributed.LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
-                                      dashboard_address=None) as cluster, distributed.Client(cluster) as client:
+        with (
+            distributed.LocalCluster(
+                n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None
+            ) as cluster,
+            distributed.Client(cluster) as client,
+        ):
             yield client
         return
     try:
@@ -312,8 +319,9 @@ def _outcomes(pending: List[Job], config: SweepConfig, jobs: int, dask) -> Itera
         yield from Parallel(n_jobs=-1, return_as="generator_unordered")(calls)
 
 
-def run_sweep(config: SweepConfig, out=None, jobs: Optional[int] = None, dask=None,
-              progress_stream=None, quiet: bool = True) -> SweepOutcome:
+def run_sweep(
+    config: SweepConfig, out=None, jobs: Optional[int] = None, dask=None, progress_stream=None, quiet: bool = True
+) -> SweepOutcome:
     """Run the jobs of ``config`` not yet in its results store.
 
     Parameters
@@ -351,4 +359,3 @@ def run_sweep(config: SweepConfig, out=None, jobs: Optional[int] = None, dask=No
     finally:
         progress.close()
     return SweepOutcome(store, len(config.jobs), skipped, ran)
-

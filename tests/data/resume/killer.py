@@ -12,7 +12,7 @@ import signal
 import sys
 
 mode, k = sys.argv[1], int(sys.argv[2])
-args = sys.argv[sys.argv.index("--") + 1:]
+args = sys.argv[sys.argv.index("--") + 1 :]
 count = {"n": 0}
 
 
