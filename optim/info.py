@@ -394,7 +394,7 @@ def _general_pairs(X: np.ndarray, card: np.ndarray, weights, prior: float):
     onehot[np.arange(N)[:, None], X + starts] = row_values
     mass, a = data_mass * scale, prior * scale
     values, firsts = np.unique(card, return_index=True)
-    groups = [(int(f), int(s), int(k)) for f, s, k in zip(firsts, np.append(firsts[1:], n), values)]
+    groups = [(int(f), int(s), int(k)) for f, s, k in zip(firsts, np.append(firsts[1:], n), values, strict=True)]
     counts = np.empty(width, dtype=np.float64)
     sums = np.empty((n, n), dtype=np.float64)
     blocks = list(_variable_blocks(card, width))

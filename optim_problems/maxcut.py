@@ -118,7 +118,9 @@ class MaxCutProblem(Problem):
         graph = nx.Graph()
         graph.add_nodes_from(self.variable_names)
         names = self.variable_names
-        graph.add_weighted_edges_from((names[a], names[b], float(c)) for a, b, c in zip(self.u, self.v, self.w))
+        graph.add_weighted_edges_from(
+            (names[a], names[b], float(c)) for a, b, c in zip(self.u, self.v, self.w, strict=True)
+        )
         return graph
 
     def describe(self) -> dict:

@@ -297,7 +297,7 @@ def format_formula(formula: MaxSatFormula) -> str:
         lines.append(f"p cnf {formula.n_variables} {formula.n_clauses}")
         lines.extend(" ".join(map(str, clause + (0,))) for clause in formula.clauses)
     else:
-        for clause, weight, hard in zip(formula.clauses, formula.weights, formula.hard):
+        for clause, weight, hard in zip(formula.clauses, formula.weights, formula.hard, strict=True):
             head = "h" if hard else str(int(weight))
             lines.append(" ".join([head, *map(str, clause), "0"]))
     return "\n".join(lines) + "\n"
@@ -479,7 +479,7 @@ def rc2_optimum(formula: MaxSatFormula) -> Tuple[Optional[float], Optional[np.nd
     RC2, WCNF = _import_rc2()
     wcnf = WCNF()
     fixed_cost = 0
-    for clause, weight, hard in zip(formula.clauses, formula.weights, formula.hard):
+    for clause, weight, hard in zip(formula.clauses, formula.weights, formula.hard, strict=True):
         if not clause:
             if hard:
                 return None, None

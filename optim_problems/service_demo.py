@@ -214,7 +214,7 @@ class ServiceLatency(Problem):
     def _optimal_settings(self, toggles: int):
         """An optimal setting (ties resolved towards off) and its noise-free latency."""
         settings = (self._linear < 0).astype(np.uint8)
-        groups = _groups(toggles, zip(self._first.tolist(), self._second.tolist()))
+        groups = _groups(toggles, zip(self._first.tolist(), self._second.tolist(), strict=True))
         for group in groups:
             size = len(group)
             if size > _MAX_GROUP:

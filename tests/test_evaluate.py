@@ -51,7 +51,7 @@ def test_every_fault_kind_of_a_per_candidate_objective():
     from_file = sys.modules[module_problem.function.__module__]
     X = all_codes(6, np.random.default_rng(1), 40)
     outcomes = score_candidates(module_problem, X)
-    for x, (value, kind, message) in zip(X, outcomes):
+    for x, (value, kind, message) in zip(X, outcomes, strict=True):
         code = 4 * int(x[0]) + 2 * int(x[1]) + int(x[2])
         expected = from_file.FAULTS.get(code)
         assert kind == expected, (code, kind, message)
@@ -59,7 +59,7 @@ def test_every_fault_kind_of_a_per_candidate_objective():
             assert value == float(x.sum()) and message == ""
         else:
             assert math.isnan(value) and kind in FAILURE_KINDS and message
-    messages = {4 * int(x[0]) + 2 * int(x[1]) + int(x[2]): m for x, (_, _, m) in zip(X, outcomes)}
+    messages = {4 * int(x[0]) + 2 * int(x[1]) + int(x[2]): m for x, (_, _, m) in zip(X, outcomes, strict=True)}
     assert messages[0].startswith("RuntimeError: the model did not converge (at ") and "objectives.py:" in messages[0]
     assert messages[1] == "the objective returned nan"
     assert messages[2] == "the objective returned -inf"

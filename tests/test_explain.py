@@ -68,7 +68,7 @@ def test_wilson_interval_matches_scipy_and_a_published_table():
     counts = [(0, 1), (1, 1), (0, 20), (1, 29), (15, 148), (81, 263), (7, 10), (2000, 2000), (1999, 2000)]
     k, n = np.array(counts).T
     lower, upper = wilson_interval(k, n)
-    for (kk, nn), lo, hi in zip(counts, lower, upper):
+    for (kk, nn), lo, hi in zip(counts, lower, upper, strict=True):
         # reference: scipy.stats.binomtest(k, n).proportion_ci(method="wilson")
         ci = scipy.stats.binomtest(int(kk), int(nn)).proportion_ci(method="wilson")
         assert lo == pytest.approx(ci.low, abs=1e-12) and hi == pytest.approx(ci.high, abs=1e-12)

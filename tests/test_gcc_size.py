@@ -55,7 +55,7 @@ def build_elf(bits, order, sections, extended=False):
         names += name.encode() + b"\0"
     body = bytearray(header_size)
     placed = []
-    for (name, kind, flags, size), at in zip(sections, name_at):
+    for (_name, kind, flags, size), at in zip(sections, name_at[:-1], strict=True):
         placed.append((at, kind, flags, len(body), size))
         if kind != SHT_NOBITS:
             body += bytes(range(256)) * (size // 256) + bytes(size % 256)

@@ -347,7 +347,7 @@ def test_binary_blocks_do_not_change_the_result(monkeypatch):
     for chunk in (1, 37, 100, 700):
         monkeypatch.setattr(info, "_CHUNK_CELLS", chunk)
         got = [mutual_information(X, 2, prior) for prior in (0.0, 1.0)] + [joint_entropy(X, 2, None, 1.0)]
-        for value, reference in zip(got, expected):
+        for value, reference in zip(got, expected, strict=True):
             np.testing.assert_array_equal(value, reference)
 
 

@@ -5,6 +5,7 @@ The ending rules are checked on objectives whose outcome is known in advance
 populations and evaluations can be written down exactly.
 """
 
+import itertools
 import copy
 
 import numpy as np
@@ -143,7 +144,7 @@ def test_budget_is_respected_exactly_through_the_driver():
         assert (
             sum(
                 r["evaluations"] - p["evaluations"]
-                for p, r in zip([{"evaluations": 0}] + result.history, result.history)
+                for p, r in itertools.pairwise([{"evaluations": 0}] + result.history)
             )
             == budget
         )
@@ -226,7 +227,7 @@ def test_state_round_trip_gives_an_identical_continuation():
     restored = PopulationLadder(problem, restored_rng)  # other defaults: the state must carry its own
     restored.set_state(state)
     got = _steps(restored, problem, 60)
-    for a, b in zip(expected, got):
+    for a, b in zip(expected, got, strict=True):
         assert np.array_equal(a.candidates, b.candidates)
         assert np.array_equal(a.fitness, b.fitness)
     assert restored.populations == ladder.populations and len(ladder.populations) >= 2
@@ -260,7 +261,7 @@ def test_checkpoint_file_round_trip_of_a_search_with_auto_population(tmp_path):
     state, _ = load_checkpoint(tmp_path / "c.npz")
     resumed.set_state(state)
     got = [resumed.step() for _ in range(30)]
-    for a, b in zip(expected, got):
+    for a, b in zip(expected, got, strict=True):
         assert {k: v for k, v in a.items() if k not in ("seconds", "time")} == {
             k: v for k, v in b.items() if k not in ("seconds", "time")
         }

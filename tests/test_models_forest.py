@@ -36,7 +36,7 @@ def two_independent_chains(count, rng, flip=0.1):
     edges = set()
     for chain in ((0, 2, 4, 6), (1, 3, 5, 7)):
         X[:, chain[0]] = rng.random(count) < 0.5
-        for parent, child in zip(chain[:-1], chain[1:]):
+        for parent, child in zip(chain[:-1], chain[1:], strict=True):
             X[:, child] = X[:, parent] ^ (rng.random(count) < flip)
             edges.add(frozenset((parent, child)))
     return X, edges

@@ -283,8 +283,8 @@ def test_samples_with_zero_prior_stay_on_the_sample_support_of_each_edge():
     model = DependencyTree(cardinality=card, prior=0).fit(X)
     draws = model.sample(20000, np.random.default_rng(15))
     for parent, child in model.edges():
-        seen = set(zip(X[:, parent].tolist(), X[:, child].tolist()))
-        assert set(zip(draws[:, parent].tolist(), draws[:, child].tolist())) <= seen
+        seen = set(zip(X[:, parent].tolist(), X[:, child].tolist(), strict=True))
+        assert set(zip(draws[:, parent].tolist(), draws[:, child].tolist(), strict=True)) <= seen
     _check_sample_against_exact_pairs(model, card, 20000, seed=16)
 
 

@@ -177,7 +177,9 @@ def test_every_fault_kind_is_recorded_and_the_run_completes(tmp_path):
         candidates, scores, _ = folder.read_evaluated()
         codes = 4 * candidates[:, 0].astype(int) + 2 * candidates[:, 1] + candidates[:, 2]
         failures = read_jsonl(folder.file(RunFolder.FAILURES))
-        expected = [(candidate_text(x), module.FAULTS[c]) for x, c in zip(candidates, codes) if c in module.FAULTS]
+        expected = [
+            (candidate_text(x), module.FAULTS[c]) for x, c in zip(candidates, codes, strict=True) if c in module.FAULTS
+        ]
         assert [(f["candidate"], f["kind"]) for f in failures] == expected
         assert {kind for _, kind in expected} == {"exception", "nan", "inf", "shape", "type"}
         assert np.all(np.isnan(scores[codes < 6])) and np.all(scores[codes >= 6] == candidates[codes >= 6].sum(1))

@@ -69,7 +69,7 @@ def test_repair_score_matches_greedy_dropping_reference(kind):
     rng = np.random.default_rng(41)
     X = rng.integers(0, 2, size=(300, 25)).astype(np.uint8)
     repaired = problem.repair(X)
-    for x, r, score in zip(X, repaired, problem.evaluate(X)):
+    for x, r, score in zip(X, repaired, problem.evaluate(X), strict=True):
         kept = _slow_repair(weights, values, problem.capacity, x)
         assert np.flatnonzero(r).tolist() == sorted(kept)
         assert score == sum(int(values[j]) for j in kept)
@@ -82,7 +82,7 @@ def test_repair_score_matches_greedy_dropping_reference(kind):
 def test_repair_keeps_zero_weight_items_and_feasible_candidates():
     problem = KnapsackProblem([0, 5, 4, 7], [3, 10, 2, 7], capacity=6)
     X = np.array([[1, 1, 1, 1], [1, 0, 1, 0], [0, 0, 0, 0]], np.uint8)
-    for x, r in zip(X, problem.repair(X)):
+    for x, r in zip(X, problem.repair(X), strict=True):
         assert np.flatnonzero(r).tolist() == sorted(_slow_repair(problem.weights, problem.values, 6, x))
     np.testing.assert_array_equal(problem.repair(X[1:]), X[1:])
 

@@ -39,7 +39,7 @@ def test_evaluate_matches_edge_by_edge_reference():
     w = rng.integers(-3, 8, size=m).astype(float)
     problem = MaxCutProblem(n, u, v, w)
     X = rng.integers(0, 2, size=(300, n)).astype(np.uint8)
-    expected = np.array([_slow_cut(list(zip(u, v, w)), x) for x in X])
+    expected = np.array([_slow_cut(list(zip(u, v, w, strict=True)), x) for x in X])
     np.testing.assert_allclose(problem.evaluate(X), expected, rtol=0, atol=1e-9)
     assert problem.evaluate(X).dtype == np.float64
     assert np.all(problem.u < problem.v)
@@ -54,8 +54,8 @@ def test_evaluate_agrees_with_networkx_cut_size():
     problem = max_cut_from_graph(graph, solve=False)
     X = rng.integers(0, 2, size=(50, 15)).astype(np.uint8)
     scores = problem.evaluate(X)
-    for x, score in zip(X, scores):
-        side = [node for node, bit in zip(graph.nodes, x) if bit]
+    for x, score in zip(X, scores, strict=True):
+        side = [node for node, bit in zip(graph.nodes, x, strict=True) if bit]
         assert score == nx.cut_size(graph, side, weight="weight")
 
 
@@ -65,7 +65,7 @@ def test_evaluate_over_several_edge_blocks():
     problem = MaxCutProblem(120, u, v, w)
     rng = np.random.default_rng(33)
     X = rng.integers(0, 2, size=(5, 120)).astype(np.uint8)
-    expected = np.array([_slow_cut(list(zip(u, v, w)), x) for x in X])
+    expected = np.array([_slow_cut(list(zip(u, v, w, strict=True)), x) for x in X])
     np.testing.assert_allclose(problem.evaluate(X), expected, rtol=0, atol=1e-9)
 
 

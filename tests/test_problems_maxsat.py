@@ -32,7 +32,7 @@ def _slow_score(formula, x):
     """Obviously-correct score of one candidate, clause by clause."""
     soft_total = int(formula.weights[~formula.hard].sum())
     score = 0.0
-    for clause, weight, hard in zip(formula.clauses, formula.weights, formula.hard):
+    for clause, weight, hard in zip(formula.clauses, formula.weights, formula.hard, strict=True):
         satisfied = any((x[abs(lit) - 1] == 1) == (lit > 0) for lit in clause)
         if hard and not satisfied:
             score -= soft_total + 1

@@ -25,7 +25,7 @@ BUNDLED = os.path.join(os.path.dirname(__file__), os.pardir, "optim_problems", "
 def _slow_makespan(times, machine_per_job, machines):
     """Per-candidate reference: add up each machine's load with plain Python."""
     loads = [0] * machines
-    for time, machine in zip(times, machine_per_job):
+    for time, machine in zip(times, machine_per_job, strict=True):
         loads[machine] += int(time)
     return max(loads)
 

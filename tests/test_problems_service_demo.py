@@ -12,7 +12,7 @@ DOCUMENTED_CONTRAST = {"synergy": -1.0, "conflict": 1.0, "must-match": -2.0}
 
 def _slow_latency(problem, row):
     """Per-candidate reference built from the exposed structure and the documented formulas."""
-    on = {name: int(v) for name, v in zip(problem.variable_names, row)}
+    on = {name: int(v) for name, v in zip(problem.variable_names, row, strict=True)}
     total = problem.base_latency + sum(effect * on[name] for name, effect in problem.main_effects.items())
     for pair in problem.interactions:
         a, b = on[pair.a], on[pair.b]

@@ -1,6 +1,5 @@
 """Runs that survive: kill a run at many points, resume it, and get exactly the uninterrupted run."""
 
-import json
 import os
 import signal
 import subprocess

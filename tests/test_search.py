@@ -1,5 +1,6 @@
 """The search driver and the methods: budgets, stop rules, determinism, and solving known problems."""
 
+import itertools
 import numpy as np
 import pytest
 
@@ -32,7 +33,7 @@ def test_budget_is_a_hard_cap(method):
     assert result.evaluations == 1001
     assert result.stop_reason == "budget"
     assert result.history[-1]["evaluations"] == 1001
-    assert all(b["evaluations"] > a["evaluations"] for a, b in zip(result.history, result.history[1:]))
+    assert all(b["evaluations"] > a["evaluations"] for a, b in itertools.pairwise(result.history))
 
 
 @pytest.mark.parametrize("method", ["tree", "forest", "univariate", "hillclimb", "random"])

@@ -21,7 +21,7 @@ def _graph(weights):
     graph = nx.Graph()
     graph.add_nodes_from(range(n))
     rows, cols = np.triu_indices(n, k=1)
-    graph.add_weighted_edges_from(zip(rows.tolist(), cols.tolist(), weights[rows, cols].tolist()))
+    graph.add_weighted_edges_from(zip(rows.tolist(), cols.tolist(), weights[rows, cols].tolist(), strict=True))
     return graph
 
 

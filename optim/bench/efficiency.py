@@ -131,7 +131,7 @@ def run_tasks(
     from joblib import Parallel, delayed
 
     outputs = Parallel(n_jobs=workers, return_as="generator")(delayed(run_task)(task) for task in unique)
-    for done, (task, output) in enumerate(zip(unique, outputs), 1):
+    for done, (task, output) in enumerate(zip(unique, outputs, strict=True), 1):
         results[task] = output
         if progress is not None:
             progress(done, len(unique))
@@ -155,7 +155,7 @@ def fit_exponent(sizes: Sequence[float], evaluations: Sequence[float]) -> Option
 
     If evaluations grow like ``c · n^b``, the slope is ``b`` (common practice, no source).
     """
-    points = [(math.log(n), math.log(e)) for n, e in zip(sizes, evaluations) if e is not None and e > 0]
+    points = [(math.log(n), math.log(e)) for n, e in zip(sizes, evaluations, strict=True) if e is not None and e > 0]
     if len(points) < 2:
         return None
     x, y = np.array(points).T

@@ -368,9 +368,13 @@ def format_text(report: dict) -> str:
     """The tables as aligned plain text."""
     blocks = []
     for title, header, rows, note in _tables(report):
-        widths = [max(len(str(c)) for c in column) for column in zip(header, *rows)]
-        lines = [title, "  ".join(h.ljust(w) for h, w in zip(header, widths)), "  ".join("-" * w for w in widths)]
-        lines += ["  ".join(str(c).ljust(w) for c, w in zip(row, widths)).rstrip() for row in rows]
+        widths = [max(len(str(c)) for c in column) for column in zip(header, *rows, strict=True)]
+        lines = [
+            title,
+            "  ".join(h.ljust(w) for h, w in zip(header, widths, strict=True)),
+            "  ".join("-" * w for w in widths),
+        ]
+        lines += ["  ".join(str(c).ljust(w) for c, w in zip(row, widths, strict=True)).rstrip() for row in rows]
         if note:
             lines.append(f"({note})")
         blocks.append("\n".join(lines))

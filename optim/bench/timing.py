@@ -87,7 +87,7 @@ def time_ratios(
             "candidate_seconds": min(times[name]),
             "reference_seconds": best_reference,
             "ratio": min(times[name]) / best_reference,
-            "median_ratio": median(c / r for c, r in zip(times[name], reference_times)),
+            "median_ratio": median(c / r for c, r in zip(times[name], reference_times, strict=True)),
             "repeats": len(reference_times),
         }
         for name in candidates
@@ -125,8 +125,11 @@ def measure_fit(
         F = X.astype(np.float32)
         model = DependencyTree(prior=1.0)
         timing = time_ratios(
-            lambda: F.T @ F,
-            {"structure": lambda: maximum_spanning_tree(mutual_information(X, prior=1.0)), "fit": lambda: model.fit(X)},
+            lambda F=F: F.T @ F,
+            {
+                "structure": lambda X=X: maximum_spanning_tree(mutual_information(X, prior=1.0)),
+                "fit": lambda X=X, model=model: model.fit(X),
+            },
             repeats,
             min_seconds,
         )
@@ -162,7 +165,12 @@ def measure_sampling(
         N = samples_per_variable * n
         model = DependencyTree(prior=1.0).fit(_binary_sample(n, N, seed + n))
         rng = np.random.default_rng(seed)
-        timing = time_ratio(lambda: model.sample(N, rng), lambda: rng.random((N, n)), repeats, min_seconds)
+        timing = time_ratio(
+            lambda model=model, N=N, rng=rng: model.sample(N, rng),
+            lambda N=N, n=n, rng=rng: rng.random((N, n)),
+            repeats,
+            min_seconds,
+        )
         depth = _tree_depth(model)
         rows.append(
             {

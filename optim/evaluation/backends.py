@@ -216,7 +216,7 @@ def _run_tasks(pool, X: np.ndarray, timeout: Optional[float]) -> list:
                 task, _ = running.pop(future)
                 status, value = pool.result(future)
                 if status == "ok":
-                    for i, outcome in zip(task.rows, value):
+                    for i, outcome in zip(task.rows, value, strict=True):
                         outcomes[i] = tuple(outcome)
                 elif task.solo:
                     outcomes[task.rows[0]] = (math.nan, "crash", _CRASH.format(value))
@@ -589,7 +589,7 @@ class DaskBackend:
             try:
                 client.close(timeout=CONNECT_TIMEOUT)
             finally:
-                for logger, level in zip(loggers, levels):
+                for logger, level in zip(loggers, levels, strict=True):
                     logger.setLevel(level)
         if cluster is not None:
             cluster.close(timeout=CONNECT_TIMEOUT)

@@ -275,7 +275,7 @@ class Evaluator:
         self._cache = {}
         if "cache_keys" in state:
             keys = np.asarray(state["cache_keys"], dtype=np.uint8)
-            for row, value in zip(keys, np.asarray(state["cache_values"], dtype=np.float64)):
+            for row, value in zip(keys, np.asarray(state["cache_values"], dtype=np.float64), strict=True):
                 self._cache[row.tobytes()] = float(value)
 
     def take_failures(self) -> List[Failure]:
@@ -308,7 +308,7 @@ class Evaluator:
                 todo_keys.append(key)
         if todo_index:
             fresh = self._evaluate_fresh(X[todo_index])
-            for key, value in zip(todo_keys, fresh):
+            for key, value in zip(todo_keys, fresh, strict=True):
                 self._cache[key] = value
         for i, key in enumerate(keys):
             if key in seen:

@@ -830,7 +830,7 @@ def _links(data: RunData) -> Tuple[List[LinkFinding], Optional[np.ndarray]]:
             p_adjusted=float(min(1.0, p * tests)),
             generations_linked=int(linked[code[k]]),
         )
-        for k, p in zip(peak, p_values)
+        for k, p in zip(peak, p_values, strict=True)
     ]
     links.sort(key=lambda link: (link.p_value, -link.g / link.df, -link.peak_information))
     matrix = np.zeros((n, n))

@@ -125,7 +125,7 @@ def _radial_layout(graph) -> Tuple[Dict[int, Tuple[float, float]], Dict[int, int
     roots: Dict[int, int] = {}
     all_leaves: set = set()
     x = y = row_height = 0.0
-    for component, radius in zip(components, radii):
+    for component, radius in zip(components, radii, strict=True):
         cell = 2 * radius + 2.0  # room for the labels around the circle
         if x > 0 and x + cell > row_width:
             x, y, row_height = 0.0, y - row_height, 0.0
@@ -244,7 +244,7 @@ def _draw_tree(plt, explanation: Explanation, path: Path) -> Optional[Path]:
     )
     size = max(7.0, 0.2 * max(g.number_of_nodes() for g, _ in panels) + 4)
     figure, axes = plt.subplots(1, len(panels), figsize=(size * len(panels), size), squeeze=False)
-    for ax, (graph, title) in zip(axes[0], panels):
+    for ax, (graph, title) in zip(axes[0], panels, strict=True):
         _draw_one_tree(plt, ax, graph, explanation, title)
     figure.suptitle("Node colour: the favoured value (faint: the best candidates disagree)", fontsize=9)
     return _save(plt, figure, path)
@@ -316,7 +316,7 @@ def _draw_interactions(plt, explanation: Explanation, path: Path) -> Optional[Pa
         panels.append((information, "Strongest link over the run (mutual information)", "nats", False))
     side = max(5.5, 0.16 * len(shown) + 3)
     figure, axes = plt.subplots(1, len(panels), figsize=(side * len(panels) + 1, side), squeeze=False)
-    for ax, (matrix, title, colour_label, diverging) in zip(axes[0], panels):
+    for ax, (matrix, title, colour_label, diverging) in zip(axes[0], panels, strict=True):
         _heat(plt, figure, ax, matrix, labels, title, colour_label, diverging)
     subtitle = (
         "settings in depth-first order of the tree of strongest links"

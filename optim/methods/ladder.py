@@ -232,6 +232,7 @@ class PopulationLadder(Method):
                 np.asarray(state["rung_populations"]).tolist(),
                 np.asarray(state["rung_evaluations"]).tolist(),
                 np.asarray(state["rung_endings"]).tolist(),
+                strict=False,
             )
         ]
         self.run = None

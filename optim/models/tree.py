@@ -243,7 +243,7 @@ class DependencyTree(Model):
         steps = self.order[scaled[self.order]]
         compares = [np.less if rising else np.greater for rising in (slope[steps] > 0.0).tolist()]
         scaled_rows, parent_rows, out_rows = list(uniforms), list(drawn), list(as_bool)  # row views, made once
-        for i, parent, compare in zip(steps.tolist(), self.parents[steps].tolist(), compares):
+        for i, parent, compare in zip(steps.tolist(), self.parents[steps].tolist(), compares, strict=True):
             compare(scaled_rows[i], parent_rows[parent], out_rows[i])
 
     def log_prob(self, X) -> np.ndarray:

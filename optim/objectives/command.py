@@ -760,7 +760,7 @@ class CommandProblem(Problem):
         """
         x = self._check_candidate(x)
         folder = Path(workdir) if workdir is not None else (self.workdir or self.config_dir)
-        chosen = {v.name: (v.values[k], v.arguments[k]) for v, k in zip(self.variables, x.tolist())}
+        chosen = {v.name: (v.values[k], v.arguments[k]) for v, k in zip(self.variables, x.tolist(), strict=True)}
         flags = [argument for v in self.variables for argument in chosen[v.name][1]]
         fixed = {"config_dir": str(self.config_dir), "workdir": str(folder)}
         if self.shell:

@@ -258,7 +258,7 @@ def _parse_methods(checker: Checker, data) -> List[MethodEntry]:
         axes.sort(key=lambda axis: axis[0] != "method")
         method_is_grid = any(is_grid for key, _, is_grid in axes if key == "method")
         for combination in itertools.product(*[values for _, values, _ in axes]):
-            settings = dict(zip([key for key, _, _ in axes], combination))
+            settings = dict(zip([key for key, _, _ in axes], combination, strict=True))
             parts = [] if label is None and method_is_grid else [label or settings["method"]]
             parts += [
                 settings[key] if key == "method" else f"{key}={settings[key]}" for key, _, is_grid in axes if is_grid
