@@ -1,6 +1,8 @@
 """A catalogue of malformed run configs: each gives one line naming file, line and key, exit status 2,
 no traceback, and nothing written."""
 
+import math
+
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -166,12 +168,41 @@ keys = st.sampled_from(
 )
 
 
+def _is_whole(value, low):
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and value == int(value) and value >= low
+
+
+def _is_fraction(value, low_open=True):
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        return False
+    return (0 < value if low_open else 0 <= value) and value <= 1
+
+
+def _check_documented_rules(config):
+    """Restate the README's rules for every setting independently of the loader: an accepted config obeys them."""
+    search, stop = config.search, config.stop
+    assert search.method in ("tree", "forest", "univariate", "hillclimb", "random")
+    assert search.population == "auto" or _is_whole(search.population, 2)
+    assert _is_fraction(search.select)
+    assert isinstance(search.prior, (int, float)) and not isinstance(search.prior, bool) and search.prior >= 0
+    assert isinstance(search.elitism, bool) and isinstance(stop.collapse, bool)
+    assert _is_fraction(search.alpha) and search.alpha < 1
+    assert _is_whole(search.jobs, 1)
+    assert _is_whole(stop.evaluations, 1)
+    assert stop.target is None or stop.target == "optimum" or isinstance(stop.target, (int, float))
+    assert stop.patience is None or _is_whole(stop.patience, 1)
+    assert isinstance(config.problem.get("use"), str) and config.problem["use"]
+
+
 def _loads(text):
+    """Load ``text``; a config either fails with a ConfigError or obeys every documented rule."""
     try:
         doc = parse_yaml_text(text, "fuzz.yaml")
-        parse_run_config(doc)
+        config = parse_run_config(doc)
     except ConfigError:
-        pass
+        return False
+    _check_documented_rules(config)
+    return True
 
 
 @settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -195,6 +226,35 @@ def test_mutations_of_a_valid_config_are_accepted_or_rejected_cleanly(mutations)
     except yaml.YAMLError:
         return
     _loads(text)
+
+
+@pytest.mark.parametrize(
+    "section, key, value",
+    [
+        ("search", "select", 1.5),
+        ("search", "select", 0),
+        ("search", "select", "half"),
+        ("search", "population", 1),
+        ("search", "population", "many"),
+        ("search", "alpha", 1.0),
+        ("search", "method", "annealing-of-doom"),
+        ("search", "jobs", 0),
+        ("search", "prior", -1),
+        ("stop", "evaluations", 0),
+        ("stop", "patience", 0),
+        ("stop", "collapse", "sometimes"),
+        ("", "nonsense", 1),
+        ("search", "nonsense", 1),
+    ],
+)
+def test_the_fuzzed_mutations_can_be_refused(section, key, value):
+    """The property tests above would pass for a loader that accepted everything; these mutations must fail."""
+    import yaml
+
+    data = yaml.safe_load(GOOD)
+    (data if not section else data[section])[key] = value
+    assert _loads(yaml.safe_dump(data)) is False
+    assert _loads(GOOD) is True
 
 
 def test_valid_config_loads(tmp_path):

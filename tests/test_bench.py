@@ -45,6 +45,8 @@ TINY = dataclasses.replace(
     scaling_multiples=(4, 8),
     scaling_budget=2000,
     workers=1,
+    # The throughput section starts a local Dask cluster (about half a minute); tests/test_parallel.py checks it.
+    sections=tuple(s for s in QUICK.sections if s != "throughput"),
 )
 
 
@@ -72,6 +74,7 @@ def test_tiny_run_has_every_section_well_formed(tiny_report):
         "seconds",
     ):
         assert key in report
+    assert "throughput" not in report  # a section left out is not run
     assert report["mode"] == "tiny" and report["settings"]["seeds"] == 2
     assert isinstance(report["machine"]["blas"], list)
     assert [r["n"] for r in report["fit"]] == [20, 40] and [r["n"] for r in report["sampling"]] == [20, 40]
@@ -85,10 +88,12 @@ def test_tiny_run_has_every_section_well_formed(tiny_report):
         assert 1 <= row["tree_depth"] < row["n"]
     generation = report["generation"]
     assert set(generation["shares"]) == {"fit", "sample", "evaluate", "bookkeeping"}
-    assert (
-        sum(generation["shares"].values()) == pytest.approx(1.0, abs=1e-6)
-        or generation["seconds"]["bookkeeping"] == 0.0
-    )
+    shares = generation["shares"]
+    assert all(0 <= share for share in shares.values())
+    if generation["seconds"]["bookkeeping"] > 0:  # one timed generation: the four parts are the whole step
+        assert sum(shares.values()) == pytest.approx(1.0, abs=1e-6)
+    else:  # the timed parts took the whole step and bookkeeping was clamped at zero
+        assert sum(shares.values()) >= 1.0 - 1e-6
     memory = report["memory"]
     assert "error" not in memory, memory.get("error")
     assert memory["peak_mb"] >= memory["baseline_mb"] > 0 and "child process" in memory["method"]
