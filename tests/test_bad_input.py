@@ -30,6 +30,8 @@ CATALOGUE = [
     ("tab indentation", "problem:\n\tuse: onemax\n", 2, "not valid YAML"),
     ("unclosed quote", "name: 'oops\nproblem:\n  use: onemax\n", None, "not valid YAML"),
     ("empty file", "", 1, "no 'problem' section"),
+    ("a section twice", "problem:\n  use: onemax\n  n: 5\nproblem:\n  use: trap\n", 4, "given twice, on lines 1 and 4"),
+    ("a key twice", "problem:\n  use: onemax\n  n: 5\n  n: 6\n", 4, "'problem.n': given twice, on lines 3 and 4"),
     ("top level list", "- problem\n", 1, "expected a mapping"),
     ("top level scalar", "just text\n", 1, "expected a mapping"),
     ("missing problem", "search:\n  method: tree\n", 1, "no 'problem' section"),

@@ -132,8 +132,28 @@ def parse_yaml_text(text: str, source: str) -> YamlDocument:
         raise ConfigError(f"this is not valid YAML: {problem}", source, line) from None
     lines: Dict[Tuple[str, ...], int] = {(): 1}
     if node is not None:
+        _refuse_repeated_keys(node, (), source)
         _record_lines(node, (), lines)
     return YamlDocument(data, source, lines)
+
+
+def _refuse_repeated_keys(node, path: Tuple[str, ...], source: str) -> None:
+    """Raise :class:`ConfigError` at the second of two equal keys of one mapping (YAML keeps the last silently)."""
+    if isinstance(node, yaml.MappingNode):
+        first_line: Dict[str, int] = {}
+        for key_node, value_node in node.value:
+            if isinstance(key_node, yaml.ScalarNode):
+                key, line = str(key_node.value), key_node.start_mark.line + 1
+                if key in first_line:
+                    raise ConfigError(
+                        f"given twice, on lines {first_line[key]} and {line}; keep one", source, line,
+                        ".".join(path + (key,)),
+                    )
+                first_line[key] = line
+                _refuse_repeated_keys(value_node, path + (key,), source)
+    elif isinstance(node, yaml.SequenceNode):
+        for index, item in enumerate(node.value):
+            _refuse_repeated_keys(item, path + (str(index),), source)
 
 
 # -- validators ---------------------------------------------------------------------------------
