@@ -1,4 +1,4 @@
-"""optim.evaluation.evaluator and the local backends of optim.evaluation.backends, one piece at a time.
+"""optim.evaluation: scoring, the evaluator and the local backends, one piece at a time.
 
 Reference values are the objectives themselves evaluated directly in this
 process (their own vectorised ``evaluate``) or, for shipping, in a separate
@@ -18,16 +18,13 @@ import pytest
 
 from optim import objectives
 from optim.errors import OptimError
-from optim.evaluation.evaluator import FAILURE_KINDS, EvaluationFailure, Evaluator, candidate_text, score_candidates
+from optim.evaluation import WorkerError
+from optim.evaluation.backends import backend_kind, make_backend
+from optim.evaluation.evaluator import Evaluator
+from optim.evaluation.local import ProcessBackend, ThreadBackend
+from optim.evaluation.scoring import FAILURE_KINDS, EvaluationFailure, candidate_text, score_candidates
+from optim.evaluation.shipping import ship_problem
 from optim.problem import FunctionProblem, Problem
-from optim.evaluation.backends import (
-    ProcessBackend,
-    ThreadBackend,
-    WorkerError,
-    backend_kind,
-    make_backend,
-    ship_problem,
-)
 
 ROOT = Path(__file__).resolve().parents[1]
 OBJECTIVES = Path(__file__).resolve().parent / "data" / "objectives_parallel" / "objectives.py"
@@ -261,7 +258,7 @@ def test_a_user_file_objective_is_shipped_by_value():
     payload = ship_problem(problem)
     X = np.random.default_rng(4).integers(0, 2, size=(12, 8), dtype=np.uint8)
     script = (
-        "import pickle, sys, numpy as np; from optim.evaluation.evaluator import score_candidates; "
+        "import pickle, sys, numpy as np; from optim.evaluation.scoring import score_candidates; "
         "data = sys.stdin.buffer.read(); problem = pickle.loads(data[:-96]); "
         "X = np.frombuffer(data[-96:], dtype=np.uint8).reshape(12, 8); "
         "print(repr([o[0] if o[1] is None else o[1] for o in score_candidates(problem, X)]))"

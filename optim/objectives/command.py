@@ -90,7 +90,7 @@ Config (everything under ``problem:``)::
     the shell interprets the whole script, with your rights; prefer a list
     command or a script file. Off unless set explicitly.
 
-Failed evaluations raise :class:`optim.evaluation.evaluator.EvaluationFailure`; the
+Failed evaluations raise :class:`optim.evaluation.scoring.EvaluationFailure`; the
 evaluator records them (``failures.jsonl``) and scores the candidate worst:
 kind ``exit`` (non-zero exit status, with the last lines of standard error),
 ``timeout``, ``no-score`` (the score was not found; the message says what was
@@ -115,7 +115,7 @@ from typing import Any, Dict, List, Mapping, NamedTuple, Optional, Tuple
 
 import numpy as np
 
-from optim.evaluation.evaluator import EvaluationFailure
+from optim.evaluation.scoring import EvaluationFailure
 from optim.problem import GOALS, Problem
 
 __all__ = [
@@ -797,7 +797,7 @@ class CommandProblem(Problem):
 
         Raises
         ------
-        optim.evaluation.evaluator.EvaluationFailure
+        optim.evaluation.scoring.EvaluationFailure
             Of kind ``exit``, ``timeout``, ``no-score`` or ``launch``.
         """
         x = self._check_candidate(x)
