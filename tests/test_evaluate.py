@@ -101,6 +101,27 @@ def test_things_that_are_not_one_number(value, kind):
     assert math.isnan(score) and got == kind and message
 
 
+class _RawText(Problem):
+    """Per-candidate, not a FunctionProblem: its raw value is a text, its converted score a number."""
+
+    vectorized = False
+
+    def __init__(self):
+        super().__init__(3, name="raw-text")
+
+    def evaluate(self, X):
+        return np.zeros(len(X))
+
+    def raw_value(self, x):
+        return "12"
+
+
+def test_the_scorer_checks_the_raw_value_of_any_problem_class():
+    [(score, kind, message)] = score_candidates(_RawText(), np.zeros((1, 3), np.uint8))
+    assert math.isnan(score) and kind == "type" and "'12'" in message
+    assert _RawText().evaluate_one(np.zeros(3, np.uint8)) == 0.0
+
+
 def test_an_objective_reports_its_own_kind_and_exit_is_caught():
     def reporting(x):
         if x[0]:
