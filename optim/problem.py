@@ -117,6 +117,18 @@ class Problem(abc.ABC):
         """Score one candidate (a row of length ``n``)."""
         return float(self.evaluate(np.asarray(x, dtype=np.uint8).reshape(1, -1))[0])
 
+    def raw_value(self, x: np.ndarray):
+        """What the objective returns for one candidate, before it is turned into a float.
+
+        The evaluator scores per-candidate objectives through this method and
+        checks the value itself, so that a result that is not one finite number
+        (a text, ``None``, a list, NaN) is recorded as such rather than as
+        whatever error converting it would raise. The default is
+        :meth:`evaluate_one`; a problem that wraps user code returns that
+        code's value as it is.
+        """
+        return self.evaluate_one(x)
+
     def initial_candidates(self) -> Optional[np.ndarray]:
         """Known configurations to include in the first population, or ``None``."""
         return None
@@ -189,3 +201,9 @@ class FunctionProblem(Problem):
         if self.vectorized:
             return super().evaluate_one(x)
         return float(self.function(np.asarray(x, dtype=np.uint8)))
+
+    def raw_value(self, x: np.ndarray):
+        """The function's own return value for one candidate (per-candidate functions), unconverted."""
+        if self.vectorized:
+            return super().raw_value(x)
+        return self.function(np.asarray(x, dtype=np.uint8))

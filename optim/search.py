@@ -16,7 +16,7 @@ from typing import Callable, List, Optional, Union
 
 import numpy as np
 
-from optim.evaluation.evaluator import Evaluator, candidate_text
+from optim.evaluation import Evaluator, candidate_text
 from optim.methods import METHODS, make_method
 from optim.problem import Problem
 

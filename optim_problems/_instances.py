@@ -1,8 +1,9 @@
 """Shared helpers for the combinatorial benchmark problems.
 
-Reading instance files (plain or compressed text, with errors that name the
-file and the line) and enumerating every binary assignment of a small
-instance for exact reference optima.
+Reading instance files (plain or compressed text, and YAML that keeps the line
+of every value, with errors that name the file and the line), enumerating
+every binary assignment of a small instance for exact reference optima, and
+reaching the MILP solver of scipy for the others.
 """
 
 from __future__ import annotations
@@ -21,6 +22,10 @@ __all__ = [
     "binary_assignments",
     "exhaustive_maximum",
     "resolve_solve_option",
+    "LineDict",
+    "LineList",
+    "read_yaml",
+    "import_milp",
 ]
 
 _OPENERS = {".gz": gzip.open, ".bz2": bz2.open, ".xz": lzma.open}
@@ -66,6 +71,86 @@ def read_instance_lines(path) -> List[Tuple[int, str]]:
         if isinstance(error, FileNotFoundError):
             raise
         raise InstanceFormatError(path, None, f"could not be read: {error}") from None
+
+
+def import_milp():
+    """Return ``(milp, Bounds, LinearConstraint)`` from scipy, or raise a clear ImportError."""
+    try:
+        from scipy.optimize import Bounds, LinearConstraint, milp
+    except ImportError as error:  # pragma: no cover - depends on the environment
+        raise ImportError(
+            "the exact reference solver needs scipy (>= 1.9) for scipy.optimize.milp; "
+            "install it with 'pip install scipy' or pass solve=False"
+        ) from error
+    return milp, Bounds, LinearConstraint
+
+
+class LineDict(dict):
+    """A YAML mapping that remembers where it and each of its values start (1-based lines)."""
+
+    line: int = 0
+    value_lines: dict
+
+    def line_of(self, key) -> int:
+        """Line of the value stored under ``key`` (the mapping's own line when absent)."""
+        return self.value_lines.get(key, self.line)
+
+
+class LineList(list):
+    """A YAML sequence that remembers where it and each of its items start (1-based lines)."""
+
+    line: int = 0
+    item_lines: list
+
+    def line_at(self, index: int) -> int:
+        """Line of item ``index``."""
+        return self.item_lines[index]
+
+
+def read_yaml(path):
+    """Parse a YAML file into :class:`LineDict` and :class:`LineList` (duplicate keys are errors)."""
+    try:
+        import yaml
+    except ImportError as error:  # pragma: no cover - depends on the environment
+        raise ImportError("reading YAML instance files needs PyYAML ('pip install pyyaml')") from error
+
+    class _Loader(yaml.SafeLoader):
+        pass
+
+    def _construct(loader, node):
+        loader.flatten_mapping(node)
+        result = LineDict()
+        result.line = node.start_mark.line + 1
+        result.value_lines = {}
+        for key_node, value_node in node.value:
+            key = loader.construct_object(key_node, deep=True)
+            if not isinstance(key, (str, int, float, bool)) and key is not None:
+                raise InstanceFormatError(path, key_node.start_mark.line + 1, f"expected a plain key; got {key!r}")
+            if key in result:
+                raise InstanceFormatError(path, key_node.start_mark.line + 1, f"duplicate key {key!r}")
+            result[key] = loader.construct_object(value_node, deep=True)
+            result.value_lines[key] = value_node.start_mark.line + 1
+        return result
+
+    def _construct_sequence(loader, node):
+        result = LineList(loader.construct_object(item, deep=True) for item in node.value)
+        result.line = node.start_mark.line + 1
+        result.item_lines = [item.start_mark.line + 1 for item in node.value]
+        return result
+
+    _Loader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_MAPPING_TAG, _construct)
+    _Loader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_SEQUENCE_TAG, _construct_sequence)
+    text = "\n".join(line for _, line in read_instance_lines(path))
+    try:
+        data = yaml.load(text, Loader=_Loader)
+    except yaml.YAMLError as error:
+        mark = getattr(error, "problem_mark", None) or getattr(error, "context_mark", None)
+        line = mark.line + 1 if mark is not None else None
+        reason = getattr(error, "problem", None) or str(error)
+        raise InstanceFormatError(path, line, f"not valid YAML ({reason})") from None
+    if not isinstance(data, LineDict):
+        raise InstanceFormatError(path, 1, "expected a YAML mapping at the top level")
+    return data
 
 
 def binary_assignments(n: int, start: int, stop: int) -> np.ndarray:

@@ -35,20 +35,18 @@ Journal on Applied Mathematics* 17(2), 416-429 (the LPT rule and its bound
 
 from __future__ import annotations
 
-import csv
 import os
-from typing import List, Optional, Sequence, Tuple
+from typing import Optional, Sequence, Tuple
 
 import numpy as np
 
 from optim.problem import Problem
-from optim_problems._instances import InstanceFormatError, read_instance_lines, resolve_solve_option
+from optim_problems._instances import import_milp, resolve_solve_option
+from optim_problems.scheduling_instances import random_jobs, read_jobs
 
 __all__ = [
     "MachineAssignment",
     "machine_assignment",
-    "read_jobs",
-    "random_jobs",
     "schedule_makespan",
     "lpt_schedule",
     "makespan_lower_bound",
@@ -62,210 +60,6 @@ ENCODINGS = ("index", "bits")
 _AUTO_SOLVE_SIZE = 240
 #: Seconds the MILP solver may spend under ``solve="auto"``.
 _AUTO_TIME_LIMIT = 10.0
-
-
-# --------------------------------------------------------------------------- file helpers
-
-
-def _import_milp():
-    """Return ``(milp, Bounds, LinearConstraint)`` from scipy, or raise a clear ImportError."""
-    try:
-        from scipy.optimize import Bounds, LinearConstraint, milp
-    except ImportError as error:  # pragma: no cover - depends on the environment
-        raise ImportError(
-            "the exact reference solver needs scipy (>= 1.9) for scipy.optimize.milp; "
-            "install it with 'pip install scipy' or pass solve=False"
-        ) from error
-    return milp, Bounds, LinearConstraint
-
-
-class _LineDict(dict):
-    """A YAML mapping that remembers where it and each of its values start (1-based lines)."""
-
-    line: int = 0
-    value_lines: dict
-
-    def line_of(self, key) -> int:
-        """Line of the value stored under ``key`` (the mapping's own line when absent)."""
-        return self.value_lines.get(key, self.line)
-
-
-class _LineList(list):
-    """A YAML sequence that remembers where it and each of its items start (1-based lines)."""
-
-    line: int = 0
-    item_lines: list
-
-    def line_at(self, index: int) -> int:
-        """Line of item ``index``."""
-        return self.item_lines[index]
-
-
-def _read_yaml(path):
-    """Parse a YAML file into :class:`_LineDict` and :class:`_LineList` (duplicate keys are errors)."""
-    try:
-        import yaml
-    except ImportError as error:  # pragma: no cover - depends on the environment
-        raise ImportError("reading YAML instance files needs PyYAML ('pip install pyyaml')") from error
-
-    class _Loader(yaml.SafeLoader):
-        pass
-
-    def _construct(loader, node):
-        loader.flatten_mapping(node)
-        result = _LineDict()
-        result.line = node.start_mark.line + 1
-        result.value_lines = {}
-        for key_node, value_node in node.value:
-            key = loader.construct_object(key_node, deep=True)
-            if not isinstance(key, (str, int, float, bool)) and key is not None:
-                raise InstanceFormatError(path, key_node.start_mark.line + 1, f"expected a plain key; got {key!r}")
-            if key in result:
-                raise InstanceFormatError(path, key_node.start_mark.line + 1, f"duplicate key {key!r}")
-            result[key] = loader.construct_object(value_node, deep=True)
-            result.value_lines[key] = value_node.start_mark.line + 1
-        return result
-
-    def _construct_sequence(loader, node):
-        result = _LineList(loader.construct_object(item, deep=True) for item in node.value)
-        result.line = node.start_mark.line + 1
-        result.item_lines = [item.start_mark.line + 1 for item in node.value]
-        return result
-
-    _Loader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_MAPPING_TAG, _construct)
-    _Loader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_SEQUENCE_TAG, _construct_sequence)
-    text = "\n".join(line for _, line in read_instance_lines(path))
-    try:
-        data = yaml.load(text, Loader=_Loader)
-    except yaml.YAMLError as error:
-        mark = getattr(error, "problem_mark", None) or getattr(error, "context_mark", None)
-        line = mark.line + 1 if mark is not None else None
-        reason = getattr(error, "problem", None) or str(error)
-        raise InstanceFormatError(path, line, f"not valid YAML ({reason})") from None
-    if not isinstance(data, _LineDict):
-        raise InstanceFormatError(path, 1, "expected a YAML mapping at the top level")
-    return data
-
-
-def _positive_int(value, path, line, what) -> int:
-    """``value`` as a positive int, or a file error saying what was expected."""
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
-        if isinstance(value, str) and value.strip().lstrip("+").isdigit():
-            value = int(value)
-        else:
-            raise InstanceFormatError(path, line, f"{what} must be a positive integer; got {value!r}")
-    if value < 1:
-        raise InstanceFormatError(path, line, f"{what} must be a positive integer; got {value!r}")
-    return int(value)
-
-
-# --------------------------------------------------------------------------- instances
-
-
-def _read_jobs_yaml(path) -> Tuple[List[str], np.ndarray, Optional[int]]:
-    data = _read_yaml(path)
-    unknown = sorted(set(data) - {"machines", "jobs"}, key=str)
-    if unknown:
-        raise InstanceFormatError(
-            path, data.line_of(unknown[0]), f"unknown key {unknown[0]!r}; expected 'machines' and 'jobs'"
-        )
-    machines = None
-    if "machines" in data:
-        machines = _positive_int(data["machines"], path, data.line_of("machines"), "'machines'")
-    if "jobs" not in data:
-        raise InstanceFormatError(path, data.line, "missing key 'jobs' (a list of {name, time} entries)")
-    jobs = data["jobs"]
-    if not isinstance(jobs, list) or not jobs:
-        raise InstanceFormatError(path, data.line_of("jobs"), "'jobs' must be a non-empty list of {name, time} entries")
-    names, times = [], []
-    for position, entry in enumerate(jobs):
-        line = jobs.line_at(position)
-        if not isinstance(entry, _LineDict):
-            raise InstanceFormatError(
-                path, line, f"job {position + 1} must be a mapping with 'name' and 'time'; got {entry!r}"
-            )
-        extra = sorted(set(entry) - {"name", "time"}, key=str)
-        if extra:
-            raise InstanceFormatError(
-                path, entry.line_of(extra[0]), f"unknown job key {extra[0]!r}; expected 'name' and 'time'"
-            )
-        for key in ("name", "time"):
-            if key not in entry:
-                raise InstanceFormatError(path, line, f"job {position + 1} has no '{key}'")
-        names.append(_job_name(entry["name"], path, entry.line_of("name"), names))
-        times.append(_positive_int(entry["time"], path, entry.line_of("time"), f"time of job {names[-1]!r}"))
-    return names, np.asarray(times, dtype=np.int64), machines
-
-
-def _job_name(value, path, line, seen) -> str:
-    if value is None or isinstance(value, (list, dict)) or not str(value).strip():
-        raise InstanceFormatError(path, line, f"job name must be a non-empty text; got {value!r}")
-    name = str(value).strip()
-    if name in seen:
-        raise InstanceFormatError(path, line, f"duplicate job name {name!r}")
-    return name
-
-
-def _read_jobs_csv(path) -> Tuple[List[str], np.ndarray, Optional[int]]:
-    names, times = [], []
-    header = None
-    for line, text in read_instance_lines(path):
-        if not text.strip():
-            continue
-        cells = [cell.strip() for cell in next(csv.reader([text]))]
-        if header is None:
-            if [cell.lower() for cell in cells] != ["name", "time"]:
-                raise InstanceFormatError(path, line, f"expected the header 'name,time'; got {text!r}")
-            header = cells
-            continue
-        if len(cells) != 2:
-            raise InstanceFormatError(path, line, f"expected 2 fields (name,time); got {len(cells)}")
-        names.append(_job_name(cells[0], path, line, names))
-        times.append(_positive_int(cells[1], path, line, f"time of job {names[-1]!r}"))
-    if header is None:
-        raise InstanceFormatError(path, None, "empty file; expected the header 'name,time' and one job per line")
-    if not names:
-        raise InstanceFormatError(path, None, "no jobs after the header 'name,time'")
-    return names, np.asarray(times, dtype=np.int64), None
-
-
-def read_jobs(path) -> Tuple[List[str], np.ndarray, Optional[int]]:
-    """Read a job list from a YAML or CSV instance file (format in the module docstring).
-
-    Parameters
-    ----------
-    path : str or os.PathLike
-        A ``.yaml``/``.yml`` or ``.csv`` file, optionally compressed (``.gz``, ``.bz2``, ``.xz``).
-
-    Returns
-    -------
-    names : list of str
-        Job names in file order.
-    times : numpy.ndarray
-        int64 processing times.
-    machines : int or None
-        The machine count given in a YAML file, else ``None``.
-    """
-    path = os.fspath(path)
-    stem, extension = os.path.splitext(path)
-    if extension.lower() in (".gz", ".bz2", ".xz"):
-        extension = os.path.splitext(stem)[1]
-    extension = extension.lower()
-    if extension in (".yaml", ".yml"):
-        return _read_jobs_yaml(path)
-    if extension == ".csv":
-        return _read_jobs_csv(path)
-    raise ValueError(f"{path}: unknown instance format {extension!r}; expected .yaml, .yml or .csv")
-
-
-def random_jobs(jobs: int = 20, low: int = 1, high: int = 20, seed: int = 0) -> np.ndarray:
-    """Processing times drawn uniformly from ``low … high`` (inclusive) with a seeded generator."""
-    if int(jobs) != jobs or jobs < 1:
-        raise ValueError(f"jobs must be a positive integer; got {jobs!r}")
-    if int(low) != low or int(high) != high or not 1 <= low <= high:
-        raise ValueError(f"need integers 1 <= low <= high; got low={low!r}, high={high!r}")
-    rng = np.random.default_rng(seed)
-    return rng.integers(int(low), int(high) + 1, size=int(jobs)).astype(np.int64)
 
 
 # --------------------------------------------------------------------------- references
@@ -348,7 +142,7 @@ def solve_exact(times, machines: int, time_limit: Optional[float] = None) -> Tup
         When the solver stops without proving optimality.
     """
     times, machines = _check_times(times, machines)
-    milp, Bounds, LinearConstraint = _import_milp()
+    milp, Bounds, LinearConstraint = import_milp()
     jobs = times.size
     count = jobs * machines + 1
     makespan_column = count - 1

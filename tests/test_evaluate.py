@@ -1,4 +1,4 @@
-"""optim.evaluation.evaluator and the local backends of optim.evaluation.backends, one piece at a time.
+"""optim.evaluation: scoring, the evaluator and the local backends, one piece at a time.
 
 Reference values are the objectives themselves evaluated directly in this
 process (their own vectorised ``evaluate``) or, for shipping, in a separate
@@ -18,16 +18,13 @@ import pytest
 
 from optim import objectives
 from optim.errors import OptimError
-from optim.evaluation.evaluator import FAILURE_KINDS, EvaluationFailure, Evaluator, candidate_text, score_candidates
+from optim.evaluation import WorkerError
+from optim.evaluation.backends import backend_kind, make_backend
+from optim.evaluation.evaluator import Evaluator
+from optim.evaluation.local import ProcessBackend, ThreadBackend
+from optim.evaluation.scoring import FAILURE_KINDS, EvaluationFailure, candidate_text, score_candidates
+from optim.evaluation.shipping import ship_problem
 from optim.problem import FunctionProblem, Problem
-from optim.evaluation.backends import (
-    ProcessBackend,
-    ThreadBackend,
-    WorkerError,
-    backend_kind,
-    make_backend,
-    ship_problem,
-)
 
 ROOT = Path(__file__).resolve().parents[1]
 OBJECTIVES = Path(__file__).resolve().parent / "data" / "objectives_parallel" / "objectives.py"
@@ -102,6 +99,27 @@ def test_things_that_are_not_one_number(value, kind):
     problem = FunctionProblem(lambda x: value, 3)
     [(score, got, message)] = score_candidates(problem, np.zeros((1, 3), np.uint8))
     assert math.isnan(score) and got == kind and message
+
+
+class _RawText(Problem):
+    """Per-candidate, not a FunctionProblem: its raw value is a text, its converted score a number."""
+
+    vectorized = False
+
+    def __init__(self):
+        super().__init__(3, name="raw-text")
+
+    def evaluate(self, X):
+        return np.zeros(len(X))
+
+    def raw_value(self, x):
+        return "12"
+
+
+def test_the_scorer_checks_the_raw_value_of_any_problem_class():
+    [(score, kind, message)] = score_candidates(_RawText(), np.zeros((1, 3), np.uint8))
+    assert math.isnan(score) and kind == "type" and "'12'" in message
+    assert _RawText().evaluate_one(np.zeros(3, np.uint8)) == 0.0
 
 
 def test_an_objective_reports_its_own_kind_and_exit_is_caught():
@@ -261,7 +279,7 @@ def test_a_user_file_objective_is_shipped_by_value():
     payload = ship_problem(problem)
     X = np.random.default_rng(4).integers(0, 2, size=(12, 8), dtype=np.uint8)
     script = (
-        "import pickle, sys, numpy as np; from optim.evaluation.evaluator import score_candidates; "
+        "import pickle, sys, numpy as np; from optim.evaluation.scoring import score_candidates; "
         "data = sys.stdin.buffer.read(); problem = pickle.loads(data[:-96]); "
         "X = np.frombuffer(data[-96:], dtype=np.uint8).reshape(12, 8); "
         "print(repr([o[0] if o[1] is None else o[1] for o in score_candidates(problem, X)]))"

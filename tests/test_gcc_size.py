@@ -19,7 +19,8 @@ import pytest
 
 from optim.runs.config import load_run_config
 from optim.runs.runner import build_problem, execute
-from optim.objectives.command import CommandProblem, ElfFormatError, elf_code_size, elf_sections
+from optim.objectives.command import CommandProblem
+from optim.objectives.elf import ElfFormatError, elf_code_size, elf_sections
 
 ROOT = Path(__file__).resolve().parents[1]
 SOURCE = ROOT / "examples" / "gcc-size" / "wordfreq.c"

@@ -25,10 +25,11 @@ from optim import objectives
 from optim.cli import main as optim_main
 from optim.runs.config import load_run_config
 from optim.errors import ConfigError
-from optim.evaluation.evaluator import Evaluator, candidate_text
+from optim.evaluation import Evaluator, candidate_text
 from optim.runs.folder import RunFolder, read_jsonl
 from optim.runs.runner import execute, resume
-from optim.evaluation.backends import ClusterUnavailable, WorkerError, worker_status
+from optim.evaluation import ClusterUnavailable, WorkerError
+from optim.evaluation.shipping import worker_status
 
 ROOT = Path(__file__).resolve().parents[1]
 OBJECTIVES = Path(__file__).resolve().parent / "data" / "objectives_parallel" / "objectives.py"
@@ -285,7 +286,7 @@ def test_losing_the_scheduler_stops_the_run_with_a_checkpoint_to_resume(tmp_path
 
 def test_an_unreachable_scheduler_is_a_clear_error_with_a_checkpoint(tmp_path, monkeypatch):
     pytest.importorskip("distributed")
-    monkeypatch.setattr("optim.evaluation.backends.CONNECT_TIMEOUT", 1.0)
+    monkeypatch.setattr("optim.evaluation.dask_backend.CONNECT_TIMEOUT", 1.0)
     path = write_config(tmp_path, "nowhere", "score", search={"dask": "tcp://127.0.0.1:1"})
     with pytest.raises(ClusterUnavailable, match="cannot reach the Dask scheduler at 'tcp://127.0.0.1:1'") as caught:
         run(path)

@@ -18,7 +18,7 @@ import yaml
 import optim.objectives.command
 import optim.objectives.loader
 from optim import objectives
-from optim.evaluation.evaluator import EvaluationFailure, Evaluator
+from optim.evaluation import EvaluationFailure, Evaluator
 from optim.search import Search, SearchSettings, StopRules
 from optim.objectives.command import CommandProblem, command
 

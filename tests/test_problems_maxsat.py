@@ -10,16 +10,13 @@ import numpy as np
 import pytest
 
 from optim_problems._instances import InstanceFormatError, exhaustive_maximum
-from optim_problems.maxsat import (
-    AUTO_SOLVE_LIMIT,
+from optim_problems.maxsat import AUTO_SOLVE_LIMIT, MaxSatProblem, max_sat, rc2_optimum
+from optim_problems.maxsat_instances import (
     ClauseCountWarning,
     MaxSatFormula,
-    MaxSatProblem,
     format_formula,
-    max_sat,
     parse_formula,
     random_ksat,
-    rc2_optimum,
     read_formula,
     write_formula,
 )

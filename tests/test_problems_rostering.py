@@ -9,13 +9,11 @@ import pytest
 from optim_problems.rostering import (
     DEFAULT_WEIGHTS,
     PENALTIES,
-    RosterData,
     StaffRoster,
-    random_roster,
-    read_roster,
     solve_exact,
     staff_roster,
 )
+from optim_problems.rostering_instances import RosterData, random_roster, read_roster
 
 DATA = os.path.join(os.path.dirname(__file__), "data", "instances")
 BUNDLED = os.path.join(os.path.dirname(__file__), os.pardir, "optim_problems", "instances")

@@ -12,11 +12,10 @@ from optim_problems.scheduling import (
     lpt_schedule,
     machine_assignment,
     makespan_lower_bound,
-    random_jobs,
-    read_jobs,
     schedule_makespan,
     solve_exact,
 )
+from optim_problems.scheduling_instances import random_jobs, read_jobs
 
 DATA = os.path.join(os.path.dirname(__file__), "data", "instances")
 BUNDLED = os.path.join(os.path.dirname(__file__), os.pardir, "optim_problems", "instances")

@@ -43,12 +43,12 @@ def _peak_megabytes() -> float:
 def child_main(arguments: Sequence[str]) -> None:
     """Entry point of the child: ``n population generations seed``; prints one JSON line."""
     n, population, generations, seed = (int(a) for a in arguments)
+    from optim.objectives import make_problem
     from optim.search import Search, SearchSettings, StopRules
-    from optim_problems.onemax import onemax
 
     baseline = _peak_megabytes()
     search = Search(
-        onemax(n),
+        make_problem("onemax", {"n": n}),
         SearchSettings(method="tree", population=population),
         StopRules(evaluations=10**12, target=None, collapse=False),
         seed=seed,

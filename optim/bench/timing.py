@@ -204,10 +204,10 @@ def measure_generation(n: int, population: int, generations: int, seed: int = 0)
     by the ``time`` record of its log entry; bookkeeping is the rest. Medians
     over the timed generations are reported.
     """
+    from optim.objectives import make_problem
     from optim.search import Search, SearchSettings, StopRules
-    from optim_problems.onemax import onemax
 
-    problem = onemax(n)
+    problem = make_problem("onemax", {"n": n})
     search = Search(
         problem,
         SearchSettings(method="tree", population=population),

@@ -1,12 +1,13 @@
 """Turn a :class:`~optim.problem.Problem` into scores for a population.
 
 Vectorised problems are called once per population, in this process.
-Per-candidate objectives are called once per candidate: in this process, or
-in parallel by one of the backends of :mod:`optim.evaluation.backends` (threads, local
-worker processes, a Dask cluster), which also enforce ``timeout`` and survive
-workers that die. Whatever runs them, scores are placed back by candidate
-index and faults are recorded in candidate order, so the results never depend
-on which evaluation finished first.
+Per-candidate objectives are called once per candidate
+(:func:`~optim.evaluation.scoring.score_candidates`): in this process, or in
+parallel by the backend :mod:`optim.evaluation.backends` chooses (threads,
+local worker processes, a Dask cluster), which also enforce ``timeout`` and
+survive workers that die. Whatever runs them, scores are placed back by
+candidate index and faults are recorded in candidate order, so the results
+never depend on which evaluation finished first.
 
 An optional cache serves candidates that were already scored; cache hits are
 counted apart from real objective calls. Failures (an exception, a missing or
@@ -18,148 +19,17 @@ value and the fault is kept for the run records.
 from __future__ import annotations
 
 import math
-import numbers
-import os
-import traceback
 import weakref
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any, List, Optional
 
 import numpy as np
 
-from optim.problem import FunctionProblem, Problem
+from optim.evaluation.backends import backend_kind, make_backend
+from optim.evaluation.scoring import Failure, candidate_text, score_candidates
+from optim.problem import Problem
 
-__all__ = ["Evaluator", "Failure", "EvaluationFailure", "candidate_text", "score_candidates", "FAILURE_KINDS"]
-
-#: The kinds of fault the evaluator itself records (objectives may raise
-#: :class:`EvaluationFailure` with kinds of their own, e.g. ``exit`` or ``no-score``).
-FAILURE_KINDS = {
-    "exception": "the objective raised an exception",
-    "nan": "the objective returned NaN",
-    "inf": "the objective returned an infinite value",
-    "shape": "the objective returned the wrong number of values",
-    "type": "the objective returned something that is not a number",
-    "crash": "the worker process evaluating the candidate died",
-    "timeout": "the evaluation took longer than search.timeout",
-}
-
-_OPTIM_DIR = str(Path(__file__).resolve().parent) + os.sep
-
-
-class EvaluationFailure(Exception):
-    """Raised by an objective to report a failed evaluation of a known kind.
-
-    ``kind`` is a short word (``exit``, ``timeout``, ``no-score`` …) and the
-    message says what happened; the candidate is scored as worst and recorded.
-    """
-
-    def __init__(self, kind: str, message: str):
-        super().__init__(message)
-        self.kind = kind
-
-    def __reduce__(self):
-        return (type(self), (self.kind, str(self)))
-
-
-@dataclass
-class Failure:
-    """One candidate whose evaluation failed."""
-
-    candidate: str
-    kind: str
-    message: str
-
-    def to_dict(self) -> dict:
-        return {"candidate": self.candidate, "kind": self.kind, "message": self.message}
-
-
-def candidate_text(x: np.ndarray) -> str:
-    """A candidate as a string of digits (base-36 digits beyond 9)."""
-    digits = "0123456789abcdefghijklmnopqrstuvwxyz"
-    if int(np.max(x, initial=0)) < 10:
-        return (np.asarray(x, dtype=np.uint8) + ord("0")).tobytes().decode("ascii")
-    return "".join(digits[int(v)] if v < 36 else f"({int(v)})" for v in x)
-
-
-def _first_line(exc: BaseException) -> str:
-    text = f"{type(exc).__name__}: {exc}".strip()
-    return text.splitlines()[0] if text else type(exc).__name__
-
-
-def _where(exc: BaseException) -> str:
-    """`` (at file:line)`` of the innermost frame outside optim itself.
-
-    Code shipped to a worker by value (cloudpickle) has the file name
-    ``<dynamic-code>``; its module's ``__file__`` names the file, as in-process.
-    """
-    found = ""
-    for frame, line in traceback.walk_tb(exc.__traceback__):
-        filename = frame.f_code.co_filename
-        if filename.startswith("<") and isinstance(frame.f_globals.get("__file__"), str):
-            filename = frame.f_globals["__file__"]
-        if not filename.startswith(_OPTIM_DIR):
-            found = f" (at {filename}:{line})"
-    return found
-
-
-def _short(value, limit: int = 60) -> str:
-    text = repr(value)
-    return text if len(text) <= limit else text[: limit - 3] + "..."
-
-
-def _as_score(value):
-    """Check what an objective returned for one candidate: ``(score, kind or None, message)``."""
-    if isinstance(value, (str, bytes)):
-        return math.nan, "type", f"the objective returned the text {_short(value)}, not a number"
-    if isinstance(value, (np.ndarray, list, tuple)):
-        try:
-            array = np.asarray(value, dtype=np.float64)
-        except (TypeError, ValueError):
-            return math.nan, "type", f"the objective returned a {type(value).__name__} that is not made of numbers"
-        if array.size != 1:
-            return (
-                math.nan,
-                "shape",
-                f"the objective returned a {type(value).__name__} of shape {array.shape}; expected one number",
-            )
-        number = float(array.reshape(-1)[0])
-    elif isinstance(value, numbers.Real) or hasattr(type(value), "__float__"):
-        try:
-            number = float(value)
-        except (TypeError, ValueError, OverflowError) as exc:
-            return math.nan, "type", f"the objective returned {_short(value)}, not a number ({_first_line(exc)})"
-    else:
-        what = "None" if value is None else f"a {type(value).__name__}"
-        return math.nan, "type", f"the objective returned {what}, not a number"
-    if math.isnan(number):
-        return math.nan, "nan", "the objective returned nan"
-    if math.isinf(number):
-        return math.nan, "inf", f"the objective returned {number}"
-    return number, None, ""
-
-
-def _score_one(problem: Problem, x: np.ndarray):
-    try:
-        if isinstance(problem, FunctionProblem) and not problem.vectorized:
-            value = problem.function(x.copy())  # the raw value, so a wrong type is named as such
-        else:
-            value = problem.evaluate_one(x.copy())
-    except EvaluationFailure as exc:
-        return math.nan, exc.kind, str(exc)
-    except (Exception, SystemExit) as exc:  # the objective is user code: any exception is a recorded fault
-        return math.nan, "exception", _first_line(exc) + _where(exc)
-    return _as_score(value)
-
-
-def score_candidates(problem: Problem, X: np.ndarray) -> list:
-    """Score each row of ``X`` with one objective call, in this process.
-
-    Returns one ``(score, kind, message)`` per row: ``kind`` is ``None`` for a
-    good score, else the fault's kind (see :data:`FAILURE_KINDS`) and
-    ``score`` is NaN. This is what every backend's workers run.
-    """
-    return [_score_one(problem, x) for x in np.asarray(X, dtype=np.uint8)]
+__all__ = ["Evaluator"]
 
 
 @dataclass
@@ -229,14 +99,10 @@ class Evaluator:
     @property
     def backend_name(self) -> str:
         """Where per-candidate evaluations run: ``vectorized``, ``serial``, ``threads``, ``processes`` or ``dask``."""
-        from optim.evaluation.backends import backend_kind
-
         return backend_kind(self.problem, self.jobs, self.timeout, self.dask)
 
     def _parallel_backend(self):
         if self._backend is None:
-            from optim.evaluation.backends import make_backend
-
             backend = make_backend(self.problem, self.jobs, self.timeout, self.dask)
             if backend is None:
                 return None

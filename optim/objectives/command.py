@@ -49,8 +49,8 @@ Config (everything under ``problem:``)::
     ``{file_size: PATH}`` (the size in bytes of a file the command wrote);
     ``{elf_code_size: PATH}`` (the total size of the executable sections of
     an ELF object or program: ``.text``, ``.text.*`` and any other section
-    flagged allocated and executable; read with :func:`elf_sections`, no
-    binutils needed);
+    flagged allocated and executable; read by :mod:`optim.objectives.elf`,
+    no binutils needed);
     ``{regex: PATTERN}`` (the first match in standard output: its first group,
     or the whole match when the pattern has no group);
     ``{last_number: true}`` (the last number in standard output);
@@ -90,7 +90,7 @@ Config (everything under ``problem:``)::
     the shell interprets the whole script, with your rights; prefer a list
     command or a script file. Off unless set explicitly.
 
-Failed evaluations raise :class:`optim.evaluation.evaluator.EvaluationFailure`; the
+Failed evaluations raise :class:`optim.evaluation.scoring.EvaluationFailure`; the
 evaluator records them (``failures.jsonl``) and scores the candidate worst:
 kind ``exit`` (non-zero exit status, with the last lines of standard error),
 ``timeout``, ``no-score`` (the score was not found; the message says what was
@@ -99,477 +99,40 @@ looked for) and ``launch`` (the program could not be started).
 
 from __future__ import annotations
 
-import json
 import math
-import numbers
 import os
 import re
 import shlex
 import shutil
 import signal
-import struct
 import subprocess
 import tempfile
 from pathlib import Path
-from typing import Any, Dict, List, Mapping, NamedTuple, Optional, Tuple
+from typing import Any, Dict, List, Mapping, Optional
 
 import numpy as np
 
-from optim.evaluation.evaluator import EvaluationFailure
+from optim.evaluation.scoring import EvaluationFailure
+from optim.objectives.command_options import (
+    RESERVED,
+    argument_text,
+    fill_fixed,
+    parse_start,
+    parse_variables,
+    plain_text,
+    split_arguments,
+    template_pieces,
+)
+from optim.objectives.scores import ScoreReader, quote_tail
 from optim.problem import GOALS, Problem
 
-__all__ = [
-    "CommandProblem",
-    "CommandVariable",
-    "ElfFormatError",
-    "ElfSection",
-    "SCORE_MODES",
-    "command",
-    "elf_code_size",
-    "elf_sections",
-]
-
-#: The ways ``score`` can read a number.
-SCORE_MODES = ("file_size", "elf_code_size", "regex", "last_number", "json")
-
-#: Placeholders with a fixed meaning; no variable may use these names.
-_RESERVED = ("flags", "config_dir", "workdir")
-
-#: Lines of standard error quoted when a command exits with a non-zero status.
-_STDERR_TAIL = 5
-
-_PLACEHOLDER = re.compile(r"\{\{|\}\}|\{([^{}\s]+)\}|[{}]")
-_NUMBER = re.compile(r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?")
-
-
-class CommandVariable(NamedTuple):
-    """One variable: its name, the text of each value and that text split into arguments."""
-
-    name: str
-    values: Tuple[str, ...]
-    arguments: Tuple[Tuple[str, ...], ...]
-
-
-# -------------------------------------------------------------------------- ELF section sizes
-
-#: Section flags (ELF specification, "System V Application Binary Interface", 1997/2013).
-_SHF_ALLOC, _SHF_EXECINSTR = 0x2, 0x4
-_SHT_NOBITS = 8
-_SHN_XINDEX = 0xFFFF
-
-
-class ElfFormatError(ValueError):
-    """A file is not a well-formed ELF file; the message names the file and the fault."""
-
-
-class ElfSection(NamedTuple):
-    """One section header of an ELF file."""
-
-    name: str
-    type: int
-    flags: int
-    size: int
-
-    @property
-    def is_code(self) -> bool:
-        """Allocated, executable and stored in the file (like ``.text``)."""
-        return (self.flags & (_SHF_ALLOC | _SHF_EXECINSTR)) == (_SHF_ALLOC | _SHF_EXECINSTR) and (
-            self.type != _SHT_NOBITS
-        )
-
-
-def elf_sections(path) -> List[ElfSection]:
-    """The section headers of an ELF file (32 or 64 bit, either byte order).
-
-    Reads the ELF header and the section header table with :mod:`struct`,
-    following the layout of the System V ABI (``e_shoff``, ``e_shentsize``,
-    ``e_shnum``, ``e_shstrndx``, with the extended numbering kept in section
-    0 when a file has 0xff00 sections or more), and names each section from
-    the section-name string table.
-
-    Parameters
-    ----------
-    path : str or pathlib.Path
-        The file.
-
-    Returns
-    -------
-    list of ElfSection
-        In file order, section 0 (the null section) included.
-
-    Raises
-    ------
-    ElfFormatError
-        When the file is not ELF or its headers point outside the file.
-    """
-    path = Path(path)
-    data = path.read_bytes()
-
-    def bad(reason: str) -> ElfFormatError:
-        return ElfFormatError(f"{path}: not a readable ELF file: {reason}")
-
-    if len(data) < 16 or data[:4] != b"\x7fELF":
-        raise bad("it does not start with the ELF magic bytes")
-    width, order = data[4], data[5]
-    if width not in (1, 2) or order not in (1, 2):
-        raise bad(f"unknown class {width} or data encoding {order}")
-    endian = "<" if order == 1 else ">"
-    header = struct.Struct(endian + ("16sHHIIIIIHHHHHH" if width == 1 else "16sHHIQQQIHHHHHH"))
-    entry = struct.Struct(endian + ("IIIIIIIIII" if width == 1 else "IIQQQQIIQQ"))
-    if len(data) < header.size:
-        raise bad("the file ends inside the ELF header")
-    fields = header.unpack_from(data, 0)
-    shoff, shentsize, shnum, shstrndx = fields[6], fields[11], fields[12], fields[13]
-    if shoff == 0:
-        return []
-    if shentsize < entry.size:
-        raise bad(f"section headers of {shentsize} bytes; expected at least {entry.size}")
-
-    def read_header(index: int):
-        start = shoff + index * shentsize
-        if start + entry.size > len(data):
-            raise bad(f"section header {index} lies outside the file")
-        name, kind, flags, _addr, offset, size, link, _info, _align, _entsize = entry.unpack_from(data, start)
-        return name, kind, flags, offset, size, link
-
-    first = read_header(0)
-    if shnum == 0:
-        shnum = first[4]
-    if shstrndx == _SHN_XINDEX:
-        shstrndx = first[5]
-    if shnum * shentsize > len(data):
-        raise bad(f"{shnum} section headers cannot fit in the file")
-    headers = [read_header(i) for i in range(shnum)]
-    if not 0 <= shstrndx < shnum:
-        raise bad(f"the section-name table index {shstrndx} is out of range")
-    _, _, _, names_offset, names_size, _ = headers[shstrndx]
-    if names_offset + names_size > len(data):
-        raise bad("the section-name table lies outside the file")
-    names = data[names_offset : names_offset + names_size]
-    sections = []
-    for index, (name_at, kind, flags, _offset, size, _link) in enumerate(headers):
-        end = names.find(b"\0", name_at)
-        if name_at >= len(names) or end < 0:
-            if name_at == 0 and index == 0:
-                end = name_at
-            else:
-                raise bad(f"the name of section {index} lies outside the section-name table")
-        sections.append(ElfSection(names[name_at:end].decode("utf-8", "replace"), kind, flags, size))
-    return sections
-
-
-def elf_code_size(path) -> int:
-    """Total size in bytes of the code sections of an ELF file (see :attr:`ElfSection.is_code`)."""
-    return int(sum(section.size for section in elf_sections(path) if section.is_code))
-
-
-# -------------------------------------------------------------------------- reading the score
-
-
-def _number_from_text(text: str, what: str) -> float:
-    try:
-        value = float(text.strip())
-    except ValueError:
-        raise EvaluationFailure("no-score", f"{what} is {text.strip()[:80]!r}, not a number") from None
-    if not math.isfinite(value):
-        raise EvaluationFailure("no-score", f"{what} is {value}, not a finite number")
-    return value
-
-
-def _json_lookup(document: Any, key: str, where: str) -> Any:
-    value = document
-    for part in key.split("."):
-        if isinstance(value, dict) and part in value:
-            value = value[part]
-        elif isinstance(value, list) and re.fullmatch(r"-?\d+", part) and -len(value) <= int(part) < len(value):
-            value = value[int(part)]
-        else:
-            raise EvaluationFailure("no-score", f"the JSON {where} has no key {key!r} (missing at {part!r})")
-    return value
-
-
-class _ScoreReader:
-    """Reads the score of one finished command, as set out by the ``score`` option."""
-
-    def __init__(self, spec, config_dir: Path):
-        if not isinstance(spec, Mapping):
-            raise ValueError(
-                f"score: expected a mapping such as {{file_size: out.o}} or {{regex: 'size=(\\d+)'}}; found {spec!r}"
-            )
-        modes = [key for key in spec if key in SCORE_MODES]
-        others = [key for key in spec if key not in SCORE_MODES and key != "stream"]
-        if others:
-            raise ValueError(
-                f"score: unknown key {others[0]!r}; expected one of {', '.join(SCORE_MODES)} "
-                f"(and 'stream' with regex or last_number)"
-            )
-        if len(modes) != 1:
-            raise ValueError(
-                f"score: expected exactly one of {', '.join(SCORE_MODES)}; found "
-                f"{', '.join(modes) if modes else 'none'}"
-            )
-        self.mode = modes[0]
-        value = spec[self.mode]
-        self.config_dir = config_dir
-        self.stream = spec.get("stream", "stdout")
-        if "stream" in spec and self.mode not in ("regex", "last_number"):
-            raise ValueError(f"score.stream: only regex and last_number read a stream, not {self.mode}")
-        if self.stream not in ("stdout", "stderr"):
-            raise ValueError(f"score.stream: expected stdout or stderr; found {self.stream!r}")
-        self.file: Optional[str] = None
-        self.key: Optional[str] = None
-        if self.mode in ("file_size", "elf_code_size"):
-            self.file = _plain_text(value, f"score.{self.mode}", "a file path")
-            _fill_fixed(self.file, config_dir, config_dir, f"score.{self.mode}")
-        elif self.mode == "regex":
-            pattern = _plain_text(value, "score.regex", "a regular expression")
-            try:
-                self.pattern = re.compile(pattern, re.MULTILINE)
-            except re.error as exc:
-                raise ValueError(f"score.regex: {pattern!r} is not a valid regular expression ({exc})") from None
-        elif self.mode == "last_number":
-            if value is not True:
-                raise ValueError(f"score.last_number: expected true; found {value!r}")
-        else:
-            if not isinstance(value, Mapping) or "key" not in value or set(value) - {"key", "file"}:
-                raise ValueError(
-                    f"score.json: expected a mapping {{key: KEY}} or {{key: KEY, file: PATH}}; found {value!r}"
-                )
-            self.key = _plain_text(value["key"], "score.json.key", "a key such as size or timing.median")
-            if "file" in value:
-                self.file = _plain_text(value["file"], "score.json.file", "a file path")
-                _fill_fixed(self.file, config_dir, config_dir, "score.json.file")
-
-    def describe(self) -> str:
-        """What is looked for, in words (used in messages)."""
-        if self.mode == "file_size":
-            return f"the size of {self.file}"
-        if self.mode == "elf_code_size":
-            return f"the code size of the ELF file {self.file}"
-        if self.mode == "regex":
-            return f"a match of '{self.pattern.pattern}' in {self.stream}"
-        if self.mode == "last_number":
-            return f"a number in {self.stream}"
-        return f"the key {self.key!r} of the JSON in {self.file or 'stdout'}"
-
-    def _path(self, folder: Path) -> Path:
-        text = _fill_fixed(self.file, self.config_dir, folder)
-        path = Path(text).expanduser()
-        return path if path.is_absolute() else folder / path
-
-    def _existing(self, folder: Path) -> Path:
-        path = self._path(folder)
-        if not path.is_file():
-            raise EvaluationFailure("no-score", f"looked for {self.describe()}, but the command wrote no file {path}")
-        return path
-
-    def read(self, stdout: str, stderr: str, folder: Path) -> float:
-        if self.mode == "file_size":
-            return float(self._existing(folder).stat().st_size)
-        if self.mode == "elf_code_size":
-            try:
-                return float(elf_code_size(self._existing(folder)))
-            except ElfFormatError as exc:
-                raise EvaluationFailure("no-score", str(exc)) from None
-        text = stderr if self.stream == "stderr" else stdout
-        if self.mode == "regex":
-            match = self.pattern.search(text)
-            if match is None:
-                raise EvaluationFailure(
-                    "no-score", f"no match of '{self.pattern.pattern}' in {self.stream}{_quote_tail(text)}"
-                )
-            found = match.group(1) if self.pattern.groups else match.group(0)
-            return _number_from_text(found or "", f"the match of '{self.pattern.pattern}'")
-        if self.mode == "last_number":
-            numbers = _NUMBER.findall(text)
-            if not numbers:
-                raise EvaluationFailure("no-score", f"no number in {self.stream}{_quote_tail(text)}")
-            return _number_from_text(numbers[-1], f"the last number in {self.stream}")
-        if self.file is not None:
-            path = self._existing(folder)
-            where = f"file {path}"
-            try:
-                document = json.loads(path.read_text(encoding="utf-8"))
-            except (ValueError, UnicodeDecodeError) as exc:
-                raise EvaluationFailure("no-score", f"{path} is not valid JSON ({exc})") from None
-        else:
-            where = "on stdout"
-            try:
-                document = json.loads(text)
-            except ValueError as exc:
-                raise EvaluationFailure("no-score", f"stdout is not valid JSON ({exc}){_quote_tail(text)}") from None
-        value = _json_lookup(document, self.key, where)
-        if isinstance(value, bool) or not isinstance(value, (int, float, str)):
-            raise EvaluationFailure("no-score", f"the JSON {where} holds {value!r} at {self.key!r}, not a number")
-        return _number_from_text(str(value), f"the value at {self.key!r}")
-
-
-# -------------------------------------------------------------------------- validating options
-
-
-def _plain_text(value, where: str, expected: str) -> str:
-    if isinstance(value, bool) or not isinstance(value, (str, int, float)) or str(value) == "":
-        raise ValueError(f"{where}: expected {expected}; found {value!r}")
-    return str(value)
-
-
-def _argument_text(value, where: str) -> str:
-    if isinstance(value, bool) or not isinstance(value, (str, int, float)):
-        raise ValueError(f"{where}: expected a text; found {value!r}")
-    return str(value)
-
-
-def _split(text: str, where: str) -> Tuple[str, ...]:
-    try:
-        return tuple(shlex.split(text))
-    except ValueError as exc:
-        raise ValueError(f"{where}: {text!r} cannot be split into arguments ({exc})") from None
-
-
-def _parse_variables(variables) -> List[CommandVariable]:
-    if not isinstance(variables, (list, tuple)) or not variables:
-        raise ValueError("variables: expected a non-empty list of {name: ..., values: [...]} or {flag: ...}")
-    parsed, seen = [], {}
-    for index, entry in enumerate(variables):
-        where = f"variables[{index}]"
-        if not isinstance(entry, Mapping):
-            raise ValueError(
-                f"{where}: expected a mapping {{name: NAME, values: [TEXT, ...]}} or {{flag: TEXT}}; found {entry!r}"
-            )
-        unknown = set(entry) - {"name", "values", "flag"}
-        if unknown:
-            raise ValueError(f"{where}: unknown key {sorted(unknown)[0]!r}; expected name, values or flag")
-        if ("values" in entry) == ("flag" in entry):
-            raise ValueError(
-                f"{where}: give either 'values' (a list of texts) or 'flag' (one text), not "
-                f"{'both' if 'values' in entry else 'neither'}"
-            )
-        if "flag" in entry:
-            flag = _plain_text(entry["flag"], f"{where}.flag", "a non-empty text")
-            values = ["", flag]
-            default_name = flag.lstrip("-")
-        else:
-            raw = entry["values"]
-            if not isinstance(raw, (list, tuple)) or not 2 <= len(raw) <= 256:
-                raise ValueError(f"{where}.values: expected a list of 2 to 256 texts; found {raw!r}")
-            values = [_argument_text(v, f"{where}.values[{k}]") for k, v in enumerate(raw)]
-            if len(set(values)) != len(values):
-                raise ValueError(f"{where}.values: the texts must be distinct; found {raw!r}")
-            default_name = None
-        name = entry.get("name", default_name)
-        if name is None:
-            raise ValueError(f"{where}: a variable with 'values' needs a 'name'")
-        name = _plain_text(name, f"{where}.name", "a name")
-        if re.search(r"[{}\s]", name):
-            raise ValueError(f"{where}.name: {name!r} may not contain spaces or braces")
-        if name in _RESERVED:
-            raise ValueError(f"{where}.name: {name!r} is reserved for the placeholder {{{name}}}; choose another")
-        if name in seen:
-            raise ValueError(f"{where}.name: {name!r} is also the name of variables[{seen[name]}]")
-        seen[name] = index
-        arguments = tuple(_split(v, f"{where}.values") for v in values)
-        parsed.append(CommandVariable(name, tuple(values), arguments))
-    return parsed
-
-
-def _tokens(text: str, where: str, known) -> List[Tuple[str, str]]:
-    """Split an argument template into ``("text", ...)`` and ``("field", name)`` pieces."""
-    pieces = []
-    position = 0
-    for match in _PLACEHOLDER.finditer(text):
-        if match.start() > position:
-            pieces.append(("text", text[position : match.start()]))
-        token = match.group(0)
-        if token in ("{{", "}}"):
-            pieces.append(("text", token[0]))
-        elif match.group(1) is None:
-            raise ValueError(f"{where}: a lone {token!r} in {text!r}; write {token * 2!r} for a literal brace")
-        else:
-            name = match.group(1)
-            if name not in known:
-                raise ValueError(
-                    f"{where}: unknown placeholder {{{name}}} in {text!r}; known: "
-                    + ", ".join("{" + k + "}" for k in known)
-                )
-            pieces.append(("field", name))
-        position = match.end()
-    if position < len(text):
-        pieces.append(("text", text[position:]))
-    return pieces
-
-
-def _fill_fixed(text: str, config_dir: Path, workdir: Path, where: str = "path") -> str:
-    """Replace ``{config_dir}`` and ``{workdir}`` in a text (braces doubled are literal)."""
-    out = []
-    for kind, value in _tokens(text, where, ("config_dir", "workdir")):
-        out.append(value if kind == "text" else str(config_dir if value == "config_dir" else workdir))
-    return "".join(out)
-
-
-def _parse_start(start, variables: List[CommandVariable]) -> Optional[np.ndarray]:
-    if start is None:
-        return None
-    if isinstance(start, np.ndarray):
-        start = start.tolist()
-    if not isinstance(start, (list, tuple)) or not start:
-        raise ValueError(
-            "start: expected a list of candidates (each a list of value indices, a text of digits, "
-            "or a mapping from variable names to values)"
-        )
-    n = len(variables)
-    by_name = {v.name: i for i, v in enumerate(variables)}
-    rows = np.zeros((len(start), n), dtype=np.uint8)
-    for r, item in enumerate(start):
-        where = f"start[{r}]"
-        if isinstance(item, Mapping):
-            for name, value in item.items():
-                if name not in by_name:
-                    raise ValueError(f"{where}: no variable is named {name!r}")
-                variable = variables[by_name[name]]
-                if isinstance(value, str) and value in variable.values:
-                    rows[r, by_name[name]] = variable.values.index(value)
-                elif _is_index(value, len(variable.values)):
-                    rows[r, by_name[name]] = int(value)
-                else:
-                    raise ValueError(
-                        f"{where}.{name}: expected a value index 0..{len(variable.values) - 1} or one "
-                        f"of the texts {list(variable.values)}; found {value!r}"
-                    )
-            continue
-        if isinstance(item, str):
-            if not re.fullmatch(r"[0-9]*", item):
-                raise ValueError(f"{where}: a text candidate must be digits only; found {item!r}")
-            values = [int(c) for c in item]
-        elif isinstance(item, (list, tuple)):
-            values = item
-        else:
-            raise ValueError(f"{where}: expected a list, a text of digits or a mapping; found {item!r}")
-        if len(values) != n:
-            raise ValueError(f"{where}: expected {n} values (one per variable); found {len(values)}")
-        for i, value in enumerate(values):
-            limit = len(variables[i].values)
-            if not _is_index(value, limit):
-                raise ValueError(
-                    f"{where}[{i}] ({variables[i].name}): expected a value index 0..{limit - 1}; found {value!r}"
-                )
-            rows[r, i] = value
-    return rows
-
-
-def _is_index(value, limit: int) -> bool:
-    """Whether ``value`` is a whole number (not a bool) in ``0 … limit - 1``."""
-    return isinstance(value, numbers.Integral) and not isinstance(value, bool) and 0 <= int(value) < limit
+__all__ = ["CommandProblem", "command"]
 
 
 def _program_found(program: str) -> bool:
     if os.sep in program or (os.altsep and os.altsep in program):
         return os.path.isfile(program) and os.access(program, os.X_OK)
     return shutil.which(program) is not None
-
-
-def _quote_tail(text: str, lines: int = _STDERR_TAIL) -> str:
-    kept = [line for line in text.strip().splitlines() if line.strip()][-lines:]
-    return (":\n" + "\n".join(kept)) if kept else " (it was empty)"
 
 
 def _kill_group(process: subprocess.Popen) -> None:
@@ -594,7 +157,7 @@ class CommandProblem(Problem):
 
     Attributes
     ----------
-    variables : list of CommandVariable
+    variables : list of optim.objectives.command_options.CommandVariable
         Names, value texts and their arguments.
     config_dir : pathlib.Path
         The folder that relative paths and ``{config_dir}`` refer to.
@@ -624,10 +187,10 @@ class CommandProblem(Problem):
             if not isinstance(value, bool):
                 raise ValueError(f"{option}: expected true or false; found {value!r}")
         self.config_dir = Path(config_dir).expanduser().resolve() if config_dir is not None else Path.cwd()
-        self.variables = _parse_variables(variables)
+        self.variables = parse_variables(variables)
         self.shell = shell
         self._template = self._parse_command(command)
-        self.score = _ScoreReader(score, self.config_dir)
+        self.score = ScoreReader(score, self.config_dir)
         if timeout is not None and (
             isinstance(timeout, bool)
             or not isinstance(timeout, (int, float))
@@ -638,7 +201,7 @@ class CommandProblem(Problem):
         self.timeout = None if timeout is None else float(timeout)
         self.workdir = self._parse_workdir(workdir)
         self.env = self._parse_env(env)
-        self.start = _parse_start(start, self.variables)
+        self.start = parse_start(start, self.variables)
         self.rerun = rerun
         self.cache_by_default = not rerun
         first = self._template[0]
@@ -657,7 +220,7 @@ class CommandProblem(Problem):
         if self.shell:
             if not isinstance(command, str) or not command.strip():
                 raise ValueError(f"command: with shell: true, expected one text (the shell script); found {command!r}")
-            pieces = _tokens(command, "command", _RESERVED + tuple(v.name for v in self.variables))
+            pieces = template_pieces(command, "command", RESERVED + tuple(v.name for v in self.variables))
             for kind, value in pieces:
                 if kind == "field" and value not in ("config_dir", "workdir"):
                     raise ValueError(
@@ -667,14 +230,14 @@ class CommandProblem(Problem):
                     )
             return [pieces]
         if isinstance(command, str):
-            command = list(_split(command, "command"))
+            command = list(split_arguments(command, "command"))
         if not isinstance(command, (list, tuple)) or not command:
             raise ValueError(f"command: expected a non-empty list [program, argument, ...]; found {command!r}")
-        known = _RESERVED + tuple(v.name for v in self.variables)
+        known = RESERVED + tuple(v.name for v in self.variables)
         template = []
         for index, argument in enumerate(command):
             where = f"command[{index}]"
-            pieces = _tokens(_argument_text(argument, where), where, known)
+            pieces = template_pieces(argument_text(argument, where), where, known)
             if any(kind == "field" and value == "flags" for kind, value in pieces) and len(pieces) != 1:
                 raise ValueError(f"{where}: {{flags}} must be a whole argument on its own; found {argument!r}")
             template.append(pieces)
@@ -690,8 +253,8 @@ class CommandProblem(Problem):
     def _parse_workdir(self, workdir) -> Optional[Path]:
         if workdir is None:
             return None
-        text = _plain_text(workdir, "workdir", "a folder path or null")
-        path = Path(_fill_fixed(text, self.config_dir, self.config_dir, "workdir")).expanduser()
+        text = plain_text(workdir, "workdir", "a folder path or null")
+        path = Path(fill_fixed(text, self.config_dir, self.config_dir, "workdir")).expanduser()
         path = path if path.is_absolute() else self.config_dir / path
         if not path.is_dir():
             raise ValueError(
@@ -710,8 +273,8 @@ class CommandProblem(Problem):
         for key, value in env.items():
             if not isinstance(key, str) or not re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", key):
                 raise ValueError(f"env: {key!r} is not a valid environment variable name")
-            out[key] = _argument_text(value, f"env.{key}")
-            _tokens(out[key], f"env.{key}", ("config_dir", "workdir"))
+            out[key] = argument_text(value, f"env.{key}")
+            template_pieces(out[key], f"env.{key}", ("config_dir", "workdir"))
         return out
 
     def _check_program(self) -> None:
@@ -788,7 +351,7 @@ class CommandProblem(Problem):
         """The environment of one evaluation: this process's, plus ``env``."""
         merged = dict(os.environ)
         for key, value in self.env.items():
-            merged[key] = _fill_fixed(value, self.config_dir, Path(workdir))
+            merged[key] = fill_fixed(value, self.config_dir, Path(workdir))
         return merged
 
     # -- running -------------------------------------------------------------------------------
@@ -797,7 +360,7 @@ class CommandProblem(Problem):
 
         Raises
         ------
-        optim.evaluation.evaluator.EvaluationFailure
+        optim.evaluation.scoring.EvaluationFailure
             Of kind ``exit``, ``timeout``, ``no-score`` or ``launch``.
         """
         x = self._check_candidate(x)
@@ -846,7 +409,7 @@ class CommandProblem(Problem):
         if process.returncode != 0:
             status = process.returncode
             what = f"was stopped by signal {-status}" if status < 0 else f"exited with status {status}"
-            raise EvaluationFailure("exit", f"the command {what}; standard error{_quote_tail(stderr)}")
+            raise EvaluationFailure("exit", f"the command {what}; standard error{quote_tail(stderr)}")
         return self.score.read(stdout, stderr, folder)
 
     # -- records -------------------------------------------------------------------------------

@@ -22,6 +22,7 @@ from typing import Any, Callable, Mapping, NamedTuple, Optional
 
 from optim.errors import OptimError
 from optim.problem import FunctionProblem, Problem
+from optim.text import first_line
 
 __all__ = [
     "ProblemError",
@@ -57,11 +58,6 @@ class FactoryParameter(NamedTuple):
     description: str
 
 
-def _first_line(exc: BaseException) -> str:
-    text = str(exc).strip()
-    return text.splitlines()[0] if text else ""
-
-
 def _describe_exception(exc: BaseException, filename: Optional[str] = None) -> str:
     """``Type: first line`` of ``exc``, with where it arose.
 
@@ -78,7 +74,7 @@ def _describe_exception(exc: BaseException, filename: Optional[str] = None) -> s
             where = f" (line {lineno})"
         elif filename is None and not frame_file.startswith("<"):
             where = f" ({frame_file}, line {lineno})"
-    return f"{type(exc).__name__}: {_first_line(exc)}{where}"
+    return f"{type(exc).__name__}: {first_line(exc, with_type=False)}{where}"
 
 
 def _public_callables(namespace: Mapping[str, Any], module_name: Optional[str]) -> list[str]:
@@ -261,7 +257,7 @@ def _wrap_objective(function: Callable, params: Mapping[str, Any], label: str) -
     try:
         return FunctionProblem(function, **params)
     except (ValueError, TypeError) as exc:
-        raise ProblemError(f"problem {label!r}: {_first_line(exc)}") from exc
+        raise ProblemError(f"problem {label!r}: {first_line(exc, with_type=False)}") from exc
 
 
 def build_problem(
@@ -331,7 +327,7 @@ def build_problem(
     try:
         problem = target(**params)
     except (ValueError, TypeError) as exc:
-        raise ProblemError(f"problem {label!r}: {_first_line(exc)}") from exc
+        raise ProblemError(f"problem {label!r}: {first_line(exc, with_type=False)}") from exc
     if not isinstance(problem, Problem):
         raise ProblemError(f"factory {label!r} returned a {type(problem).__name__}, not a Problem")
     return problem

@@ -15,7 +15,7 @@ from optim.runs.config import RunConfig
 from optim.errors import ConfigError, OptimError, RunFolderError
 from optim.runs.folder import RunFolder
 from optim.search import Search, SearchResult
-from optim.evaluation.backends import WorkerError
+from optim.evaluation import WorkerError
 
 __all__ = ["build_problem", "execute", "resume", "RunOutcome", "Interrupted"]
 
