@@ -208,7 +208,7 @@ class Search:
             prior=s.prior,
             elitism=s.elitism,
             alpha=s.alpha,
-            lookahead=s.jobs,
+            jobs=s.jobs,
         )
         cache = problem.cache_by_default if s.cache is None else s.cache
         self.evaluator = evaluator or Evaluator(problem, jobs=s.jobs, cache=bool(cache), timeout=s.timeout, dask=s.dask)
