@@ -11,7 +11,7 @@ The goal (maximise or minimise) is handled here and only here: methods see a
 from __future__ import annotations
 
 import time
-from dataclasses import asdict, dataclass, field
+from dataclasses import dataclass, field
 from typing import Callable, List, Optional, Union
 
 import numpy as np
@@ -177,8 +177,6 @@ class Search:
     evaluator : Evaluator, optional
         Provide one to share a cache or a parallel backend; built from
         ``settings`` otherwise.
-    keep_evaluated : bool
-        Keep every evaluated candidate and its score (see :meth:`evaluated`).
     """
 
     def __init__(
@@ -188,7 +186,6 @@ class Search:
         stop: Optional[StopRules] = None,
         seed: int = 0,
         evaluator: Optional[Evaluator] = None,
-        keep_evaluated: bool = False,
     ):
         self.problem = problem
         self.settings = settings or SearchSettings()
@@ -212,9 +209,6 @@ class Search:
         )
         cache = problem.cache_by_default if s.cache is None else s.cache
         self.evaluator = evaluator or Evaluator(problem, jobs=s.jobs, cache=bool(cache), timeout=s.timeout, dask=s.dask)
-        self.keep_evaluated = bool(keep_evaluated)
-        self._evaluated_candidates: List[np.ndarray] = []
-        self._evaluated_fitness: List[np.ndarray] = []
         self.sign = 1.0 if problem.goal == "maximize" else -1.0
         self.target = _resolve_target(self.stop.target, problem)
         self.generation = 0
@@ -261,9 +255,6 @@ class Search:
         fitness = outcome.fitness
         self.last_candidates = outcome.candidates
         self.last_scores = np.where(np.isfinite(fitness), self.sign * fitness, np.nan)
-        if self.keep_evaluated and outcome.evaluations:
-            self._evaluated_candidates.append(outcome.candidates.copy())
-            self._evaluated_fitness.append(fitness.copy())
         before = self.evaluations
         self.evaluations += outcome.evaluations
         if self.evaluations > self.stop.evaluations:
@@ -329,24 +320,6 @@ class Search:
                 on_generation(self, record)
         return self.result()
 
-    def evaluated(self):
-        """Every candidate evaluated so far, in order, with its score (needs ``keep_evaluated``).
-
-        Returns ``(candidates, scores, generation)``: arrays of shapes
-        ``(evaluations, n)``, ``(evaluations,)`` and ``(evaluations,)``;
-        failed candidates have a score of ``nan``.
-        """
-        if not self.keep_evaluated:
-            raise RuntimeError("this search was not asked to keep its evaluated candidates")
-        if not self._evaluated_candidates:
-            return (np.zeros((0, self.problem.n), np.uint8), np.zeros(0), np.zeros(0, np.int64))
-        fitness = np.concatenate(self._evaluated_fitness)
-        scores = np.where(np.isfinite(fitness), self.sign * fitness, np.nan)
-        generation = np.concatenate(
-            [np.full(f.shape[0], g, dtype=np.int64) for g, f in enumerate(self._evaluated_fitness)]
-        )
-        return np.concatenate(self._evaluated_candidates), scores, generation
-
     def result(self) -> SearchResult:
         """The outcome so far (complete once :attr:`finished`)."""
         if self.best_solution is None:
@@ -371,10 +344,7 @@ class Search:
 
     # -- checkpoints ----------------------------------------------------------------------------
     def get_state(self) -> dict:
-        """Everything needed to continue this search exactly (nested dicts of arrays and plain values).
-
-        The evaluated-candidate archive kept with ``keep_evaluated`` is not included.
-        """
+        """Everything needed to continue this search exactly (nested dicts of arrays and plain values)."""
         return {
             "generation": self.generation,
             "evaluations": self.evaluations,
@@ -405,6 +375,3 @@ class Search:
         self.rng.bit_generator.state = state["rng"]
         self.method.set_state(state["method"])
         self.evaluator.set_state(state["evaluator"])
-
-    def settings_dict(self) -> dict:
-        return {"search": asdict(self.settings), "stop": asdict(self.stop), "seed": self.seed}
