@@ -13,6 +13,8 @@ from typing import Callable, Optional, Sequence
 
 import numpy as np
 
+from optim.parameters import one_of, whole_number
+
 __all__ = ["Problem", "FunctionProblem", "GOALS", "as_cardinality"]
 
 GOALS = ("maximize", "minimize")
@@ -85,13 +87,9 @@ class Problem(abc.ABC):
         name: str = "problem",
         variable_names: Optional[Sequence[str]] = None,
     ):
-        if int(n) != n or n < 1:
-            raise ValueError(f"n must be a positive integer; got {n!r}")
-        if goal not in GOALS:
-            raise ValueError(f"goal must be one of {GOALS}; got {goal!r}")
-        self.n = int(n)
+        self.n = whole_number("n", n, least=1)
+        self.goal = one_of("goal", goal, GOALS)
         self.cardinality = as_cardinality(cardinality, self.n)
-        self.goal = goal
         self.optimum = None if optimum is None else float(optimum)
         self.optimum_source = optimum_source
         self.name = name

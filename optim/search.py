@@ -17,7 +17,9 @@ from typing import Callable, List, Optional, Union
 import numpy as np
 
 from optim.evaluation.evaluator import Evaluator, candidate_text
-from optim.methods import METHODS, make_method
+from optim.errors import ParameterError
+from optim.methods import METHODS, checked_population, make_method
+from optim.parameters import flag, one_of, real_number, text, whole_number
 from optim.problem import Problem
 
 __all__ = ["SearchSettings", "StopRules", "SearchResult", "Search", "STOP_REASONS"]
@@ -36,10 +38,15 @@ STOP_REASONS = {
 class SearchSettings:
     """How to search. These defaults are the documented defaults of run configs.
 
-    Attributes
+    Every value is checked when the settings are made (a broken rule raises
+    :class:`~optim.errors.ParameterError`, a ``ValueError`` naming the parameter) and kept in its plain
+    Python type (``select=1`` becomes ``1.0``).
+
+    Parameters
     ----------
     method : str
-        One of ``tree``, ``forest``, ``univariate``, ``hillclimb``, ``random``.
+        One of the registered methods (:data:`optim.methods.METHODS`): ``tree``, ``forest``,
+        ``univariate``, ``hillclimb``, ``random``.
     population : int or "auto"
         Candidates per generation (for the hill climber and random search: evaluations per logged step).
         ``"auto"`` (the default) runs populations of doubling size one after another under the one
@@ -49,20 +56,21 @@ class SearchSettings:
     select : float
         Fraction of the pool kept by truncation selection, in (0, 1].
     prior : float
-        Dirichlet pseudo-count in the model's probability tables.
+        Dirichlet pseudo-count in the model's probability tables, >= 0.
     elitism : bool
         Keep the selected candidates in the next generation's pool.
     alpha : float
-        Significance level of the forest's edge test.
+        Significance level of the forest's edge test, in (0, 1).
     jobs : int
-        Parallel workers for per-candidate objectives.
+        Parallel workers for per-candidate objectives, >= 1 (the hill climber also scores this many
+        neighbours at a time).
     cache : bool or None
         Serve repeated candidates from a cache; ``None`` lets the problem decide
         (``Problem.cache_by_default``, true for external commands). The budget still counts every candidate the
         method asks for, so a cache never changes a run's course; the objective calls saved
         are reported as ``cache_hits`` beside ``objective_calls``.
     timeout : float or None
-        Seconds one per-candidate evaluation may take; a longer one is stopped and recorded as a
+        Seconds (> 0) one per-candidate evaluation may take; a longer one is stopped and recorded as a
         ``timeout`` failure (the evaluations then run in worker processes, even with ``jobs = 1``).
     dask : str or None
         Evaluate on a Dask cluster: a scheduler address (``tcp://host:8786``) or ``"local"`` for a
@@ -80,25 +88,70 @@ class SearchSettings:
     timeout: Optional[float] = None
     dask: Optional[str] = None
 
+    def __post_init__(self):
+        self.method = one_of("method", self.method, METHODS)
+        self.population = checked_population(self.population)
+        self.select = real_number("select", self.select, 0, 1, low_open=True)
+        self.prior = real_number("prior", self.prior, 0)
+        self.elitism = flag("elitism", self.elitism)
+        self.alpha = real_number("alpha", self.alpha, 0, 1, low_open=True, high_open=True)
+        self.jobs = whole_number("jobs", self.jobs, least=1)
+        self.cache = flag("cache", self.cache, none="the problem decides")
+        self.timeout = real_number("timeout", self.timeout, 0, low_open=True, none="no limit")
+        self.dask = text("dask", self.dask, none="evaluate on this machine")
+
+
+_TARGET_RULE = "a number, 'optimum' (the problem's known optimum) or None/null (no target)"
+_FAILURES_RULE = (
+    "a whole number of failures (>= 1) or a fraction of the evaluations in [0, 1), "
+    "or None/null (never stop for failures)"
+)
+
+
+def _checked_target(target) -> Union[float, str, None]:
+    if target is None or (isinstance(target, str) and target == "optimum"):
+        return target
+    try:
+        return real_number("target", target)
+    except ParameterError:
+        raise ParameterError("target", _TARGET_RULE, target) from None
+
+
+def _checked_failure_limit(limit) -> Union[int, float, None]:
+    if limit is None:
+        return None
+    try:
+        limit = real_number("max_failures", limit, 0)
+    except ParameterError:
+        raise ParameterError("max_failures", _FAILURES_RULE, limit) from None
+    if limit < 1:
+        return limit
+    if not limit.is_integer():
+        raise ParameterError("max_failures", _FAILURES_RULE, limit)
+    return int(limit)
+
 
 @dataclass
 class StopRules:
     """When to stop; the first rule that holds ends the run.
 
-    Attributes
+    Every value is checked when the rules are made (a broken rule raises
+    :class:`~optim.errors.ParameterError`, a ``ValueError`` naming the parameter).
+
+    Parameters
     ----------
     evaluations : int
-        The evaluation budget, never exceeded.
+        The evaluation budget (>= 1), never exceeded.
     target : float, "optimum" or None
         Stop once a score at least this good is found; ``"optimum"`` uses the
         problem's known optimum (no target when it has none); ``None`` disables.
     patience : int or None
-        Stop after this many generations without improvement of the best score.
+        Stop after this many (>= 1) generations without improvement of the best score.
     collapse : bool
         Stop when the selected candidates are all identical.
     max_failures : float or None
         Stop when more evaluations than this have failed: a whole number >= 1 is
-        a count, a number below 1 a fraction of the evaluations so far (checked
+        a count, a number in [0, 1) a fraction of the evaluations so far (checked
         from the 20th evaluation on); ``None`` never stops for failures.
     """
 
@@ -108,10 +161,49 @@ class StopRules:
     collapse: bool = True
     max_failures: Optional[float] = 0.5
 
+    def __post_init__(self):
+        self.evaluations = whole_number("evaluations", self.evaluations, least=1)
+        self.target = _checked_target(self.target)
+        self.patience = whole_number("patience", self.patience, least=1, none="no patience rule")
+        self.collapse = flag("collapse", self.collapse)
+        self.max_failures = _checked_failure_limit(self.max_failures)
+
 
 @dataclass
 class SearchResult:
-    """What a finished search returns."""
+    """What a finished search returns.
+
+    Parameters
+    ----------
+    best_solution : numpy.ndarray
+        The best candidate found, a ``uint8`` array of length ``n``.
+    best_score : float
+        Its score (``nan`` when every evaluation failed).
+    evaluations : int
+        Candidates evaluated, each counted once (repeats served from the cache included).
+    generations : int
+        Steps of the method.
+    stop_reason : str
+        Why the run ended: a key of :data:`STOP_REASONS`, or ``"running"``.
+    evaluations_to_target : int or None
+        The evaluation at which the target was first reached; ``None`` when it was not.
+    target : float or None
+        The target score the run used.
+    seed : int
+        The run's seed.
+    method : str
+        The method's name.
+    history : list of dict
+        One log record per generation (see :meth:`Search.step`).
+    model : object
+        The last probability model of a model-based method, otherwise ``None``.
+    failures : int
+        Evaluations that failed (no score).
+    cache_hits : int
+        Evaluations served from the cache.
+    objective_calls : int
+        Candidates the objective itself scored.
+    """
 
     best_solution: np.ndarray
     best_score: float
@@ -130,6 +222,7 @@ class SearchResult:
 
     @property
     def solution_text(self) -> str:
+        """The best candidate written as text (see :func:`optim.evaluation.evaluator.candidate_text`)."""
         return candidate_text(self.best_solution)
 
     def to_dict(self) -> dict:
@@ -151,13 +244,7 @@ class SearchResult:
 
 
 def _resolve_target(target, problem: Problem) -> Optional[float]:
-    if target is None:
-        return None
-    if isinstance(target, str):
-        if target != "optimum":
-            raise ValueError(f"The 'target' stop rule must be a number, 'optimum' or None. Got {target!r} instead.")
-        return problem.optimum
-    return float(target)
+    return problem.optimum if target == "optimum" else target
 
 
 class Search:
@@ -177,6 +264,13 @@ class Search:
     evaluator : Evaluator, optional
         Provide one to share a cache or a parallel backend; built from
         ``settings`` otherwise.
+
+    Attributes
+    ----------
+    last_candidates : numpy.ndarray
+        The candidates the latest step evaluated, in evaluation order.
+    last_scores : numpy.ndarray
+        Their scores (``nan`` for a failed evaluation).
     """
 
     def __init__(
@@ -190,8 +284,6 @@ class Search:
         self.problem = problem
         self.settings = settings or SearchSettings()
         self.stop = stop or StopRules()
-        if self.settings.method not in METHODS:
-            raise ValueError(f"Unknown method {self.settings.method!r}; choose one of {list(METHODS)}.")
         self.seed = int(seed)
         method_stream = np.random.SeedSequence(self.seed).spawn(1)[0]
         self.rng = np.random.Generator(np.random.PCG64(method_stream))
