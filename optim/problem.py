@@ -49,7 +49,7 @@ class Problem(abc.ABC):
     Parameters
     ----------
     n : int
-        Number of variables.
+        Number of variables (>= 1).
     cardinality : int, sequence of int or None
         Number of values of each variable (2 when ``None``).
     goal : {"maximize", "minimize"}
@@ -109,18 +109,52 @@ class Problem(abc.ABC):
 
     @abc.abstractmethod
     def evaluate(self, X: np.ndarray) -> np.ndarray:
-        """Score the candidates ``X`` (shape ``(count, n)``); returns shape ``(count,)``."""
+        """Score the candidates ``X`` (shape ``(count, n)``); returns shape ``(count,)``.
+
+        Parameters
+        ----------
+        X : numpy.ndarray
+            ``uint8`` candidates, one per row.
+
+        Returns
+        -------
+        numpy.ndarray
+            ``float64`` scores, one per candidate.
+        """
 
     def evaluate_one(self, x: np.ndarray) -> float:
-        """Score one candidate (a row of length ``n``)."""
+        """Score one candidate (a row of length ``n``).
+
+        Parameters
+        ----------
+        x : numpy.ndarray
+            The candidate's values.
+
+        Returns
+        -------
+        float
+            Its score.
+        """
         return float(self.evaluate(np.asarray(x, dtype=np.uint8).reshape(1, -1))[0])
 
     def initial_candidates(self) -> Optional[np.ndarray]:
-        """Known configurations to include in the first population, or ``None``."""
+        """Known configurations to include in the first population, or ``None``.
+
+        Returns
+        -------
+        numpy.ndarray or None
+            ``uint8`` candidates, one per row, or ``None`` when there are none.
+        """
         return None
 
     def describe(self) -> dict:
-        """A JSON-friendly summary for run records."""
+        """A JSON-friendly summary for run records.
+
+        Returns
+        -------
+        dict
+            ``name``, ``n``, ``cardinality``, ``goal``, ``optimum`` and ``optimum_source``.
+        """
         return {
             "name": self.name,
             "n": self.n,
@@ -146,8 +180,18 @@ class FunctionProblem(Problem):
         candidate (a ``uint8`` array of length ``n``) and returns a number.
         With ``vectorized=True`` it receives the ``(count, n)`` population and
         returns ``count`` numbers.
-    n, cardinality, goal, optimum, name, variable_names
-        As for :class:`Problem`.
+    n : int
+        Number of variables (>= 1).
+    cardinality : int, sequence of int or None
+        Number of values of each variable (2 when ``None``).
+    goal : {"maximize", "minimize"}
+        Direction of optimisation.
+    optimum : float or None
+        The best attainable score when it is known exactly (recorded as given by the user).
+    name : str or None
+        A short label used in logs; the function's name when ``None``.
+    variable_names : sequence of str or None
+        One name per variable; ``x0 … x{n-1}`` when ``None``.
     vectorized : bool
         Whether ``function`` scores a whole population at once.
     """

@@ -62,8 +62,8 @@ class SearchSettings:
     alpha : float
         Significance level of the forest's edge test, in (0, 1).
     jobs : int
-        Parallel workers for per-candidate objectives, >= 1 (the hill climber also scores this many
-        neighbours at a time).
+        Parallel workers for per-candidate objectives, >= 1 (for such objectives the hill climber
+        scores this many neighbours at a time).
     cache : bool or None
         Serve repeated candidates from a cache; ``None`` lets the problem decide
         (``Problem.cache_by_default``, true for external commands). The budget still counts every candidate the
@@ -226,7 +226,13 @@ class SearchResult:
         return candidate_text(self.best_solution)
 
     def to_dict(self) -> dict:
-        """The JSON-friendly summary written as ``result.json``."""
+        """The JSON-friendly summary written as ``result.json``.
+
+        Returns
+        -------
+        dict
+            The fields of the result except ``history`` and ``model``; the solution as text.
+        """
         return {
             "best_score": self.best_score if np.isfinite(self.best_score) else None,
             "best_solution": self.solution_text,
@@ -334,10 +340,19 @@ class Search:
     # -- stepping -----------------------------------------------------------------------------
     @property
     def finished(self) -> bool:
+        """``True`` once a stop rule has held."""
         return self.stop_reason is not None
 
     def step(self) -> dict:
-        """Run one generation and return its log record."""
+        """Run one generation and return its log record.
+
+        Returns
+        -------
+        dict
+            The generation's record: ``generation``, ``evaluations``, ``best``, ``mean``,
+            ``generation_best``, ``model_entropy``, ``population``, ``failures``, ``cache_hits``,
+            ``objective_calls``, ``seconds`` and the split of its time (``time``).
+        """
         if self.finished:
             raise RuntimeError(f"the search has already stopped ({self.stop_reason})")
         started = time.perf_counter()
@@ -405,7 +420,18 @@ class Search:
         return None
 
     def run(self, on_generation: Optional[Callable[["Search", dict], None]] = None) -> SearchResult:
-        """Step until a stop rule holds; ``on_generation(search, record)`` is called after each step."""
+        """Step until a stop rule holds.
+
+        Parameters
+        ----------
+        on_generation : callable or None
+            Called as ``on_generation(search, record)`` after each step.
+
+        Returns
+        -------
+        SearchResult
+            The outcome of the run.
+        """
         while not self.finished:
             record = self.step()
             if on_generation is not None:
@@ -413,7 +439,13 @@ class Search:
         return self.result()
 
     def result(self) -> SearchResult:
-        """The outcome so far (complete once :attr:`finished`)."""
+        """The outcome so far (complete once :attr:`finished`).
+
+        Returns
+        -------
+        SearchResult
+            The best candidate so far, its score and the counts.
+        """
         if self.best_solution is None:
             raise RuntimeError("no candidate has been evaluated yet")
         best_score = self._score(self.best_fitness) if np.isfinite(self.best_fitness) else float("nan")
@@ -436,7 +468,13 @@ class Search:
 
     # -- checkpoints ----------------------------------------------------------------------------
     def get_state(self) -> dict:
-        """Everything needed to continue this search exactly (nested dicts of arrays and plain values)."""
+        """Everything needed to continue this search exactly (nested dicts of arrays and plain values).
+
+        Returns
+        -------
+        dict
+            What :meth:`set_state` restores.
+        """
         return {
             "generation": self.generation,
             "evaluations": self.evaluations,
@@ -453,7 +491,13 @@ class Search:
         }
 
     def set_state(self, state: dict) -> None:
-        """Restore what :meth:`get_state` returned (into a Search built with the same settings)."""
+        """Restore what :meth:`get_state` returned (into a Search built with the same settings).
+
+        Parameters
+        ----------
+        state : dict
+            What :meth:`get_state` returned.
+        """
         self.generation = int(state["generation"])
         self.evaluations = int(state["evaluations"])
         self.best_fitness = float(state["best_fitness"])
