@@ -19,7 +19,7 @@ import numpy as np
 from optim.evaluation.evaluator import Evaluator, candidate_text
 from optim.errors import ParameterError
 from optim.methods import METHODS, checked_population, make_method
-from optim.parameters import flag, one_of, real_number, text, whole_number
+from optim.parameters import flag, one_of, or_none, real_number, text, whole_number
 from optim.problem import Problem
 
 __all__ = ["SearchSettings", "StopRules", "SearchResult", "Search", "STOP_REASONS"]
@@ -96,9 +96,9 @@ class SearchSettings:
         self.elitism = flag("elitism", self.elitism)
         self.alpha = real_number("alpha", self.alpha, 0, 1, low_open=True, high_open=True)
         self.jobs = whole_number("jobs", self.jobs, least=1)
-        self.cache = flag("cache", self.cache, none="the problem decides")
-        self.timeout = real_number("timeout", self.timeout, 0, low_open=True, none="no limit")
-        self.dask = text("dask", self.dask, none="evaluate on this machine")
+        self.cache = or_none(flag, "cache", self.cache, "the problem decides")
+        self.timeout = or_none(real_number, "timeout", self.timeout, "no limit", low=0, low_open=True)
+        self.dask = or_none(text, "dask", self.dask, "evaluate on this machine")
 
 
 _TARGET_RULE = "a number, 'optimum' (the problem's known optimum) or None/null (no target)"
@@ -164,7 +164,7 @@ class StopRules:
     def __post_init__(self):
         self.evaluations = whole_number("evaluations", self.evaluations, least=1)
         self.target = _checked_target(self.target)
-        self.patience = whole_number("patience", self.patience, least=1, none="no patience rule")
+        self.patience = or_none(whole_number, "patience", self.patience, "no patience rule", least=1)
         self.collapse = flag("collapse", self.collapse)
         self.max_failures = _checked_failure_limit(self.max_failures)
 
