@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Callable, Optional, Union
 
+from optim.errors import ParameterError
 from optim.problem import FunctionProblem, Problem
 from optim.search import Search, SearchResult, SearchSettings, StopRules
 
@@ -37,12 +38,64 @@ def optimize(
 ) -> SearchResult:
     """Search for the best candidate of ``objective``.
 
-    ``objective`` is a :class:`~optim.problem.Problem`, or a function scoring
-    one candidate (a ``uint8`` array of length ``n``), or, with
-    ``vectorized=True``, a function scoring a ``(count, n)`` population.
-    For a Problem, ``goal`` (when given) must agree with the problem's own.
-    The other parameters are those of :class:`~optim.search.SearchSettings`
-    and :class:`~optim.search.StopRules` (``budget`` is ``evaluations``).
+    Every value is checked before the search starts: a broken rule raises a ``ValueError``
+    (:class:`~optim.errors.ParameterError`) whose one line names the parameter, what it must be and
+    what was given.
+
+    Parameters
+    ----------
+    objective : Problem or callable
+        A :class:`~optim.problem.Problem`, or a function scoring one candidate (a ``uint8`` array of
+        length ``n``), or, with ``vectorized=True``, a function scoring a ``(count, n)`` population.
+    n : int or None
+        Number of variables (>= 1); required for a function, ignored for a Problem.
+    goal : {"maximize", "minimize"} or None
+        Direction of optimisation; for a function ``None`` means ``"maximize"``, for a Problem it
+        must agree with the problem's own goal when given.
+    method : str
+        One of the registered methods (:data:`optim.methods.METHODS`).
+    cardinality : int, sequence of int or None
+        Number of values of each variable of a function (2 when ``None``).
+    vectorized : bool
+        Whether the function scores a whole population in one call.
+    population : int or "auto"
+        As for :class:`~optim.search.SearchSettings`.
+    select : float
+        As for :class:`~optim.search.SearchSettings`.
+    prior : float
+        As for :class:`~optim.search.SearchSettings`.
+    elitism : bool
+        As for :class:`~optim.search.SearchSettings`.
+    alpha : float
+        As for :class:`~optim.search.SearchSettings`.
+    jobs : int
+        As for :class:`~optim.search.SearchSettings`.
+    cache : bool or None
+        As for :class:`~optim.search.SearchSettings`.
+    timeout : float or None
+        As for :class:`~optim.search.SearchSettings`.
+    dask : str or None
+        As for :class:`~optim.search.SearchSettings`.
+    budget : int
+        The evaluation budget (>= 1), never exceeded (``evaluations`` of :class:`~optim.search.StopRules`).
+    target : float, "optimum" or None
+        As for :class:`~optim.search.StopRules`.
+    patience : int or None
+        As for :class:`~optim.search.StopRules`.
+    collapse : bool
+        As for :class:`~optim.search.StopRules`.
+    max_failures : float or None
+        As for :class:`~optim.search.StopRules`.
+    seed : int
+        The single seed every random draw of the run flows from.
+    on_generation : callable or None
+        ``on_generation(search, record)`` is called after every generation with the
+        :class:`~optim.search.Search` and its log record.
+
+    Returns
+    -------
+    SearchResult
+        The best candidate, its score, the counts and the history of the run.
     """
     if isinstance(objective, Problem):
         problem = objective
@@ -50,7 +103,7 @@ def optimize(
             raise ValueError(f"The problem {problem.name!r} is to be {problem.goal}d, not {goal}d.")
     else:
         if n is None:
-            raise ValueError("The 'n' parameter is required when the objective is a plain function.")
+            raise ParameterError("n", "a whole number >= 1 (required when the objective is a plain function)", n)
         problem = FunctionProblem(objective, n, cardinality=cardinality, goal=goal or "maximize", vectorized=vectorized)
     settings = SearchSettings(
         method=method,
@@ -64,17 +117,56 @@ def optimize(
         timeout=timeout,
         dask=dask,
     )
-    stop = StopRules(evaluations=budget, target=target, patience=patience, collapse=collapse, max_failures=max_failures)
+    try:
+        stop = StopRules(
+            evaluations=budget, target=target, patience=patience, collapse=collapse, max_failures=max_failures
+        )
+    except ParameterError as error:
+        raise (error.renamed("budget") if error.parameter == "evaluations" else error) from None
     search = Search(problem, settings, stop, seed=seed)
     with search.evaluator:  # worker processes or a cluster connection live as long as the search
         return search.run(on_generation)
 
 
 def maximize(objective, n=None, method: str = "tree", **options) -> SearchResult:
-    """Maximise ``objective``; see :func:`optimize` for the options."""
+    """Maximise ``objective``: :func:`optimize` with ``goal="maximize"``.
+
+    Parameters
+    ----------
+    objective : Problem or callable
+        As for :func:`optimize`.
+    n : int or None
+        As for :func:`optimize`.
+    method : str
+        As for :func:`optimize`.
+    **options
+        Any keyword of :func:`optimize` (``population``, ``budget``, ``seed``, ...).
+
+    Returns
+    -------
+    SearchResult
+        As for :func:`optimize`.
+    """
     return optimize(objective, n, "maximize", method, **options)
 
 
 def minimize(objective, n=None, method: str = "tree", **options) -> SearchResult:
-    """Minimise ``objective``; see :func:`optimize` for the options."""
+    """Minimise ``objective``: :func:`optimize` with ``goal="minimize"``.
+
+    Parameters
+    ----------
+    objective : Problem or callable
+        As for :func:`optimize`.
+    n : int or None
+        As for :func:`optimize`.
+    method : str
+        As for :func:`optimize`.
+    **options
+        Any keyword of :func:`optimize` (``population``, ``budget``, ``seed``, ...).
+
+    Returns
+    -------
+    SearchResult
+        As for :func:`optimize`.
+    """
     return optimize(objective, n, "minimize", method, **options)

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-__all__ = ["OptimError", "ConfigError", "RunFolderError"]
+__all__ = ["OptimError", "ConfigError", "ParameterError", "RunFolderError", "parameter_message"]
 
 
 class OptimError(Exception):
@@ -21,6 +21,48 @@ class ConfigError(OptimError, ValueError):
         prefix = f"{where}: " if where else ""
         keypart = f"'{key}': " if key else ""
         super().__init__(f"{prefix}{keypart}{message}")
+
+
+def parameter_message(parameter: str, expected: str, shown: str) -> str:
+    """The one sentence every broken parameter rule is reported with.
+
+    Parameters
+    ----------
+    parameter : str
+        The parameter's name.
+    expected : str
+        What the value should have been, e.g. ``"a number in (0, 1]"``.
+    shown : str
+        The value that was given, as shown to the user (usually its ``repr``).
+
+    Returns
+    -------
+    str
+        ``The 'select' parameter must be a number in (0, 1]. Got 1.5 instead.``
+    """
+    return f"The '{parameter}' parameter must be {expected}. Got {shown} instead."
+
+
+class ParameterError(OptimError, ValueError):
+    """A parameter of a search, a stop rule or a problem has a value outside its rule.
+
+    Parameters
+    ----------
+    parameter : str
+        The parameter's name.
+    expected : str
+        What the value should have been.
+    value : object
+        The value that was given.
+    """
+
+    def __init__(self, parameter: str, expected: str, value):
+        self.parameter, self.expected, self.value = parameter, expected, value
+        super().__init__(parameter_message(parameter, expected, repr(value)))
+
+    def renamed(self, parameter: str) -> "ParameterError":
+        """The same error reported under another name (an entry point's own name for the parameter)."""
+        return ParameterError(parameter, self.expected, self.value)
 
 
 class RunFolderError(OptimError):

@@ -13,6 +13,8 @@ from typing import Callable, Optional, Sequence
 
 import numpy as np
 
+from optim.parameters import one_of, whole_number
+
 __all__ = ["Problem", "FunctionProblem", "GOALS", "as_cardinality"]
 
 GOALS = ("maximize", "minimize")
@@ -47,7 +49,7 @@ class Problem(abc.ABC):
     Parameters
     ----------
     n : int
-        Number of variables.
+        Number of variables (>= 1).
     cardinality : int, sequence of int or None
         Number of values of each variable (2 when ``None``).
     goal : {"maximize", "minimize"}
@@ -85,13 +87,9 @@ class Problem(abc.ABC):
         name: str = "problem",
         variable_names: Optional[Sequence[str]] = None,
     ):
-        if int(n) != n or n < 1:
-            raise ValueError(f"n must be a positive integer; got {n!r}")
-        if goal not in GOALS:
-            raise ValueError(f"goal must be one of {GOALS}; got {goal!r}")
-        self.n = int(n)
+        self.n = whole_number("n", n, least=1)
+        self.goal = one_of("goal", goal, GOALS)
         self.cardinality = as_cardinality(cardinality, self.n)
-        self.goal = goal
         self.optimum = None if optimum is None else float(optimum)
         self.optimum_source = optimum_source
         self.name = name
@@ -111,10 +109,32 @@ class Problem(abc.ABC):
 
     @abc.abstractmethod
     def evaluate(self, X: np.ndarray) -> np.ndarray:
-        """Score the candidates ``X`` (shape ``(count, n)``); returns shape ``(count,)``."""
+        """Score the candidates ``X`` (shape ``(count, n)``); returns shape ``(count,)``.
+
+        Parameters
+        ----------
+        X : numpy.ndarray
+            ``uint8`` candidates, one per row.
+
+        Returns
+        -------
+        numpy.ndarray
+            ``float64`` scores, one per candidate.
+        """
 
     def evaluate_one(self, x: np.ndarray) -> float:
-        """Score one candidate (a row of length ``n``)."""
+        """Score one candidate (a row of length ``n``).
+
+        Parameters
+        ----------
+        x : numpy.ndarray
+            The candidate's values.
+
+        Returns
+        -------
+        float
+            Its score.
+        """
         return float(self.evaluate(np.asarray(x, dtype=np.uint8).reshape(1, -1))[0])
 
     def raw_value(self, x: np.ndarray):
@@ -130,11 +150,23 @@ class Problem(abc.ABC):
         return self.evaluate_one(x)
 
     def initial_candidates(self) -> Optional[np.ndarray]:
-        """Known configurations to include in the first population, or ``None``."""
+        """Known configurations to include in the first population, or ``None``.
+
+        Returns
+        -------
+        numpy.ndarray or None
+            ``uint8`` candidates, one per row, or ``None`` when there are none.
+        """
         return None
 
     def describe(self) -> dict:
-        """A JSON-friendly summary for run records."""
+        """A JSON-friendly summary for run records.
+
+        Returns
+        -------
+        dict
+            ``name``, ``n``, ``cardinality``, ``goal``, ``optimum`` and ``optimum_source``.
+        """
         return {
             "name": self.name,
             "n": self.n,
@@ -160,8 +192,18 @@ class FunctionProblem(Problem):
         candidate (a ``uint8`` array of length ``n``) and returns a number.
         With ``vectorized=True`` it receives the ``(count, n)`` population and
         returns ``count`` numbers.
-    n, cardinality, goal, optimum, name, variable_names
-        As for :class:`Problem`.
+    n : int
+        Number of variables (>= 1).
+    cardinality : int, sequence of int or None
+        Number of values of each variable (2 when ``None``).
+    goal : {"maximize", "minimize"}
+        Direction of optimisation.
+    optimum : float or None
+        The best attainable score when it is known exactly (recorded as given by the user).
+    name : str or None
+        A short label used in logs; the function's name when ``None``.
+    variable_names : sequence of str or None
+        One name per variable; ``x0 … x{n-1}`` when ``None``.
     vectorized : bool
         Whether ``function`` scores a whole population at once.
     """

@@ -11,14 +11,15 @@ The goal (maximise or minimise) is handled here and only here: methods see a
 from __future__ import annotations
 
 import time
-from dataclasses import asdict, dataclass, field
-from typing import Callable, List, Optional, Union
+from dataclasses import dataclass, field
+from typing import Callable, List, Optional
 
 import numpy as np
 
 from optim.evaluation import Evaluator, candidate_text
-from optim.methods import METHODS, make_method
+from optim.methods import make_method
 from optim.problem import Problem
+from optim.settings import SearchSettings, StopRules
 
 __all__ = ["SearchSettings", "StopRules", "SearchResult", "Search", "STOP_REASONS"]
 
@@ -33,85 +34,40 @@ STOP_REASONS = {
 
 
 @dataclass
-class SearchSettings:
-    """How to search. These defaults are the documented defaults of run configs.
-
-    Attributes
-    ----------
-    method : str
-        One of ``tree``, ``forest``, ``univariate``, ``hillclimb``, ``random``.
-    population : int or "auto"
-        Candidates per generation (for the hill climber and random search: evaluations per logged step).
-        ``"auto"`` (the default) runs populations of doubling size one after another under the one
-        budget, each until it converges, stalls or stops learning from its samples
-        (:class:`optim.methods.ladder.PopulationLadder`); for the hill climber and random search it
-        logs every 100 evaluations.
-    select : float
-        Fraction of the pool kept by truncation selection, in (0, 1].
-    prior : float
-        Dirichlet pseudo-count in the model's probability tables.
-    elitism : bool
-        Keep the selected candidates in the next generation's pool.
-    alpha : float
-        Significance level of the forest's edge test.
-    jobs : int
-        Parallel workers for per-candidate objectives.
-    cache : bool or None
-        Serve repeated candidates from a cache; ``None`` lets the problem decide
-        (``Problem.cache_by_default``, true for external commands). The budget still counts every candidate the
-        method asks for, so a cache never changes a run's course; the objective calls saved
-        are reported as ``cache_hits`` beside ``objective_calls``.
-    timeout : float or None
-        Seconds one per-candidate evaluation may take; a longer one is stopped and recorded as a
-        ``timeout`` failure (the evaluations then run in worker processes, even with ``jobs = 1``).
-    dask : str or None
-        Evaluate on a Dask cluster: a scheduler address (``tcp://host:8786``) or ``"local"`` for a
-        local cluster of ``max(jobs, 2)`` workers that lives as long as the run.
-    """
-
-    method: str = "tree"
-    population: Union[int, str] = "auto"
-    select: float = 0.5
-    prior: float = 1.0
-    elitism: bool = True
-    alpha: float = 0.01
-    jobs: int = 1
-    cache: Optional[bool] = None
-    timeout: Optional[float] = None
-    dask: Optional[str] = None
-
-
-@dataclass
-class StopRules:
-    """When to stop; the first rule that holds ends the run.
-
-    Attributes
-    ----------
-    evaluations : int
-        The evaluation budget, never exceeded.
-    target : float, "optimum" or None
-        Stop once a score at least this good is found; ``"optimum"`` uses the
-        problem's known optimum (no target when it has none); ``None`` disables.
-    patience : int or None
-        Stop after this many generations without improvement of the best score.
-    collapse : bool
-        Stop when the selected candidates are all identical.
-    max_failures : float or None
-        Stop when more evaluations than this have failed: a whole number >= 1 is
-        a count, a number below 1 a fraction of the evaluations so far (checked
-        from the 20th evaluation on); ``None`` never stops for failures.
-    """
-
-    evaluations: int = 100_000
-    target: Union[float, str, None] = "optimum"
-    patience: Optional[int] = None
-    collapse: bool = True
-    max_failures: Optional[float] = 0.5
-
-
-@dataclass
 class SearchResult:
-    """What a finished search returns."""
+    """What a finished search returns.
+
+    Parameters
+    ----------
+    best_solution : numpy.ndarray
+        The best candidate found, a ``uint8`` array of length ``n``.
+    best_score : float
+        Its score (``nan`` when every evaluation failed).
+    evaluations : int
+        Candidates evaluated, each counted once (repeats served from the cache included).
+    generations : int
+        Steps of the method.
+    stop_reason : str
+        Why the run ended: a key of :data:`STOP_REASONS`, or ``"running"``.
+    evaluations_to_target : int or None
+        The evaluation at which the target was first reached; ``None`` when it was not.
+    target : float or None
+        The target score the run used.
+    seed : int
+        The run's seed.
+    method : str
+        The method's name.
+    history : list of dict
+        One log record per generation (see :meth:`Search.step`).
+    model : object
+        The last probability model of a model-based method, otherwise ``None``.
+    failures : int
+        Evaluations that failed (no score).
+    cache_hits : int
+        Evaluations served from the cache.
+    objective_calls : int
+        Candidates the objective itself scored.
+    """
 
     best_solution: np.ndarray
     best_score: float
@@ -130,10 +86,17 @@ class SearchResult:
 
     @property
     def solution_text(self) -> str:
+        """The best candidate written as text (see :func:`optim.evaluation.evaluator.candidate_text`)."""
         return candidate_text(self.best_solution)
 
     def to_dict(self) -> dict:
-        """The JSON-friendly summary written as ``result.json``."""
+        """The JSON-friendly summary written as ``result.json``.
+
+        Returns
+        -------
+        dict
+            The fields of the result except ``history`` and ``model``; the solution as text.
+        """
         return {
             "best_score": self.best_score if np.isfinite(self.best_score) else None,
             "best_solution": self.solution_text,
@@ -151,13 +114,7 @@ class SearchResult:
 
 
 def _resolve_target(target, problem: Problem) -> Optional[float]:
-    if target is None:
-        return None
-    if isinstance(target, str):
-        if target != "optimum":
-            raise ValueError(f"The 'target' stop rule must be a number, 'optimum' or None. Got {target!r} instead.")
-        return problem.optimum
-    return float(target)
+    return problem.optimum if target == "optimum" else target
 
 
 class Search:
@@ -177,8 +134,13 @@ class Search:
     evaluator : Evaluator, optional
         Provide one to share a cache or a parallel backend; built from
         ``settings`` otherwise.
-    keep_evaluated : bool
-        Keep every evaluated candidate and its score (see :meth:`evaluated`).
+
+    Attributes
+    ----------
+    last_candidates : numpy.ndarray
+        The candidates the latest step evaluated, in evaluation order.
+    last_scores : numpy.ndarray
+        Their scores (``nan`` for a failed evaluation).
     """
 
     def __init__(
@@ -188,13 +150,10 @@ class Search:
         stop: Optional[StopRules] = None,
         seed: int = 0,
         evaluator: Optional[Evaluator] = None,
-        keep_evaluated: bool = False,
     ):
         self.problem = problem
         self.settings = settings or SearchSettings()
         self.stop = stop or StopRules()
-        if self.settings.method not in METHODS:
-            raise ValueError(f"Unknown method {self.settings.method!r}; choose one of {list(METHODS)}.")
         self.seed = int(seed)
         method_stream = np.random.SeedSequence(self.seed).spawn(1)[0]
         self.rng = np.random.Generator(np.random.PCG64(method_stream))
@@ -208,13 +167,10 @@ class Search:
             prior=s.prior,
             elitism=s.elitism,
             alpha=s.alpha,
-            lookahead=s.jobs,
+            jobs=s.jobs,
         )
         cache = problem.cache_by_default if s.cache is None else s.cache
         self.evaluator = evaluator or Evaluator(problem, jobs=s.jobs, cache=bool(cache), timeout=s.timeout, dask=s.dask)
-        self.keep_evaluated = bool(keep_evaluated)
-        self._evaluated_candidates: List[np.ndarray] = []
-        self._evaluated_fitness: List[np.ndarray] = []
         self.sign = 1.0 if problem.goal == "maximize" else -1.0
         self.target = _resolve_target(self.stop.target, problem)
         self.generation = 0
@@ -248,10 +204,19 @@ class Search:
     # -- stepping -----------------------------------------------------------------------------
     @property
     def finished(self) -> bool:
+        """``True`` once a stop rule has held."""
         return self.stop_reason is not None
 
     def step(self) -> dict:
-        """Run one generation and return its log record."""
+        """Run one generation and return its log record.
+
+        Returns
+        -------
+        dict
+            The generation's record: ``generation``, ``evaluations``, ``best``, ``mean``,
+            ``generation_best``, ``model_entropy``, ``population``, ``failures``, ``cache_hits``,
+            ``objective_calls``, ``seconds`` and the split of its time (``time``).
+        """
         if self.finished:
             raise RuntimeError(f"the search has already stopped ({self.stop_reason})")
         started = time.perf_counter()
@@ -261,9 +226,6 @@ class Search:
         fitness = outcome.fitness
         self.last_candidates = outcome.candidates
         self.last_scores = np.where(np.isfinite(fitness), self.sign * fitness, np.nan)
-        if self.keep_evaluated and outcome.evaluations:
-            self._evaluated_candidates.append(outcome.candidates.copy())
-            self._evaluated_fitness.append(fitness.copy())
         before = self.evaluations
         self.evaluations += outcome.evaluations
         if self.evaluations > self.stop.evaluations:
@@ -322,33 +284,32 @@ class Search:
         return None
 
     def run(self, on_generation: Optional[Callable[["Search", dict], None]] = None) -> SearchResult:
-        """Step until a stop rule holds; ``on_generation(search, record)`` is called after each step."""
+        """Step until a stop rule holds.
+
+        Parameters
+        ----------
+        on_generation : callable or None
+            Called as ``on_generation(search, record)`` after each step.
+
+        Returns
+        -------
+        SearchResult
+            The outcome of the run.
+        """
         while not self.finished:
             record = self.step()
             if on_generation is not None:
                 on_generation(self, record)
         return self.result()
 
-    def evaluated(self):
-        """Every candidate evaluated so far, in order, with its score (needs ``keep_evaluated``).
-
-        Returns ``(candidates, scores, generation)``: arrays of shapes
-        ``(evaluations, n)``, ``(evaluations,)`` and ``(evaluations,)``;
-        failed candidates have a score of ``nan``.
-        """
-        if not self.keep_evaluated:
-            raise RuntimeError("this search was not asked to keep its evaluated candidates")
-        if not self._evaluated_candidates:
-            return (np.zeros((0, self.problem.n), np.uint8), np.zeros(0), np.zeros(0, np.int64))
-        fitness = np.concatenate(self._evaluated_fitness)
-        scores = np.where(np.isfinite(fitness), self.sign * fitness, np.nan)
-        generation = np.concatenate(
-            [np.full(f.shape[0], g, dtype=np.int64) for g, f in enumerate(self._evaluated_fitness)]
-        )
-        return np.concatenate(self._evaluated_candidates), scores, generation
-
     def result(self) -> SearchResult:
-        """The outcome so far (complete once :attr:`finished`)."""
+        """The outcome so far (complete once :attr:`finished`).
+
+        Returns
+        -------
+        SearchResult
+            The best candidate so far, its score and the counts.
+        """
         if self.best_solution is None:
             raise RuntimeError("no candidate has been evaluated yet")
         best_score = self._score(self.best_fitness) if np.isfinite(self.best_fitness) else float("nan")
@@ -373,7 +334,10 @@ class Search:
     def get_state(self) -> dict:
         """Everything needed to continue this search exactly (nested dicts of arrays and plain values).
 
-        The evaluated-candidate archive kept with ``keep_evaluated`` is not included.
+        Returns
+        -------
+        dict
+            What :meth:`set_state` restores.
         """
         return {
             "generation": self.generation,
@@ -391,7 +355,13 @@ class Search:
         }
 
     def set_state(self, state: dict) -> None:
-        """Restore what :meth:`get_state` returned (into a Search built with the same settings)."""
+        """Restore what :meth:`get_state` returned (into a Search built with the same settings).
+
+        Parameters
+        ----------
+        state : dict
+            What :meth:`get_state` returned.
+        """
         self.generation = int(state["generation"])
         self.evaluations = int(state["evaluations"])
         self.best_fitness = float(state["best_fitness"])
@@ -405,6 +375,3 @@ class Search:
         self.rng.bit_generator.state = state["rng"]
         self.method.set_state(state["method"])
         self.evaluator.set_state(state["evaluator"])
-
-    def settings_dict(self) -> dict:
-        return {"search": asdict(self.settings), "stop": asdict(self.stop), "seed": self.seed}

@@ -66,7 +66,7 @@ BAD = [
     ("problem:\n  use: onemax\nsearch:\n  select: 1.5\n", 4, "search.select", "a number in (0, 1]"),
     ("problem:\n  use: onemax\nsearch:\n  method: annealing\n", 4, "search.method", "one of tree, forest"),
     ("problem:\n  use: onemax\nstop:\n  evaluations: 1e5\n", 4, "stop.evaluations", "e-notation"),
-    ("problem:\n  use: onemax\nsearch:\n  elitism: maybe\n", 4, "search.elitism", "true or false"),
+    ("problem:\n  use: onemax\nsearch:\n  elitism: maybe\n", 4, "search.elitism", "True or False"),
     (
         "problem:\n  use: onemax\nsearch:\n  population: 500\nstop:\n  evaluations: 100\n",
         6,
@@ -103,7 +103,10 @@ def test_missing_file_and_bad_override(tmp_path):
     with pytest.raises(ConfigError, match="no such file"):
         load_run_config(tmp_path / "absent.yaml")
     path = write(tmp_path, "problem:\n  use: onemax\n")
-    with pytest.raises(ConfigError, match=r"command line \(--set\): 'search.population': expected a whole number"):
+    with pytest.raises(
+        ConfigError,
+        match=r"command line \(--set\): 'search.population': The 'population' parameter must be a whole number",
+    ):
         load_run_config(path, ["search.population=many"])
     with pytest.raises(ConfigError, match="KEY=VALUE"):
         load_run_config(path, ["search.population"])

@@ -14,7 +14,7 @@ import pytest
 from optim.runs.checkpoint import load_checkpoint, save_checkpoint
 from optim.runs.config import parse_run_config, parse_yaml_text
 from optim.errors import ConfigError
-from optim.methods import AUTO_STEP, HillClimber, PopulationLadder, RandomSearch, make_method
+from optim.methods import METHODS, AUTO_STEP, HillClimber, PopulationLadder, RandomSearch, learns_model, make_method
 from optim.methods.eda import truncation_select
 from optim.problem import FunctionProblem
 from optim.search import Search, SearchSettings, StopRules
@@ -189,7 +189,7 @@ def test_same_seed_same_run_other_seed_other_run():
     assert [r["mean"] for r in first.history] != [r["mean"] for r in other.history]
 
 
-@pytest.mark.parametrize("method", ["tree", "forest", "univariate"])
+@pytest.mark.parametrize("method", [name for name in METHODS if learns_model(name)])
 def test_solves_small_onemax_with_no_population_given(method):
     # OneMax n = 40: optimum n (all ones); every model-based method solves it easily.
     for seed in range(3):
@@ -313,7 +313,7 @@ def test_run_configs_accept_auto_and_explain_the_choice():
     assert config.search.population == "auto"
     with pytest.raises(
         ConfigError,
-        match=r"run.yaml:4: 'search.population': expected a whole number >= 2, "
+        match=r"run.yaml:4: 'search.population': The 'population' parameter must be a whole number >= 2, "
         r"or 'auto'",
     ):
         parse_run_config(parse_yaml_text("problem:\n  use: onemax\nsearch:\n  population: lots\n", "run.yaml"))

@@ -312,15 +312,15 @@ def test_run_flags_jobs_and_dask(tmp_path, cluster, capsys):
     assert saved["jobs"] == 2 and saved["dask"] == address and saved["timeout"] is None
     capsys.readouterr()
     assert optim_main(["run", str(path), "--jobs", "0", "--quiet"]) == 2
-    assert "'search.jobs': expected a whole number >= 1" in capsys.readouterr().err
+    assert "'search.jobs': The 'jobs' parameter must be a whole number >= 1" in capsys.readouterr().err
 
 
 @pytest.mark.parametrize(
     "key, value, expected",
     [
-        ("timeout", 0, "expected a number > 0, or null (no limit)"),
-        ("timeout", "soon", "expected a number > 0, or null (no limit)"),
-        ("dask", 8786, "expected a non-empty text, or null (evaluate on this machine)"),
+        ("timeout", 0, "The 'timeout' parameter must be a number > 0, or None/null (no limit)"),
+        ("timeout", "soon", "The 'timeout' parameter must be a number > 0, or None/null (no limit)"),
+        ("dask", 8786, "The 'dask' parameter must be a non-empty text, or None/null (evaluate on this machine)"),
     ],
 )
 def test_config_checks_timeout_and_dask(tmp_path, key, value, expected):

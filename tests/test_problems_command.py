@@ -340,15 +340,12 @@ def test_starting_candidates_in_every_form():
 def test_a_search_includes_the_start_and_never_ends_worse_than_it():
     # a minimised score whose uniform random candidates are all worse than the start
     problem = toy(goal="minimize", start=[[0, 0, 0, 0]])
-    search = Search(
-        problem,
-        SearchSettings(population=6, jobs=2),
-        StopRules(evaluations=12, target=None),
-        seed=3,
-        keep_evaluated=True,
-    )
-    result = search.run()
-    candidates, scores, _ = search.evaluated()
+    search = Search(problem, SearchSettings(population=6, jobs=2), StopRules(evaluations=12, target=None), seed=3)
+    evaluated = []
+    result = search.run(lambda search, record: evaluated.append((search.last_candidates, search.last_scores)))
+    candidates = np.concatenate([c for c, _ in evaluated])
+    scores = np.concatenate([s for _, s in evaluated])
+    assert candidates.shape == (12, 4)
     np.testing.assert_array_equal(candidates[0], [0, 0, 0, 0])
     assert scores[0] == 0 and result.best_score == 0
     assert result.evaluations == 12 and result.cache_hits + result.objective_calls == 12

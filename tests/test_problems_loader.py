@@ -399,7 +399,7 @@ def test_vectorized_must_be_boolean():
 
 def test_bad_objective_option_is_wrapped():
     expect_error(
-        r"problem 'example_objectives.py:lit_total': goal must be one of",
+        r"problem 'example_objectives.py:lit_total': The 'goal' parameter must be one of maximize, minimize",
         f"{EXAMPLES}:lit_total",
         {"n": 3, "goal": "best"},
     )

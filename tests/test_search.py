@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 import optim
-from optim.methods import truncation_select
+from optim.methods import METHODS, truncation_select
 from optim.search import Search, SearchSettings, StopRules
 from optim_problems.fourpeaks import four_peaks
 from optim_problems.onemax import onemax
@@ -23,7 +23,7 @@ def test_truncation_select_keeps_the_best_fraction_stably():
     assert truncation_select(fitness, 0.01).tolist() == [5, 0]  # never fewer than two
 
 
-@pytest.mark.parametrize("method", ["tree", "forest", "univariate", "hillclimb", "random"])
+@pytest.mark.parametrize("method", METHODS)
 def test_budget_is_a_hard_cap(method):
     # an unreachable target forces every method to spend the budget exactly
     problem = trap(n=30, k=3)
@@ -36,7 +36,7 @@ def test_budget_is_a_hard_cap(method):
     assert all(b["evaluations"] > a["evaluations"] for a, b in itertools.pairwise(result.history))
 
 
-@pytest.mark.parametrize("method", ["tree", "forest", "univariate", "hillclimb", "random"])
+@pytest.mark.parametrize("method", METHODS)
 def test_same_seed_same_log_different_seed_different_log(method):
     problem = trap(n=24, k=3, shuffle=True, seed=2)
     settings = SearchSettings(method=method, population=50)

@@ -31,6 +31,7 @@ from pathlib import Path
 from typing import Callable, Optional, Tuple, Union
 
 from optim.bench.efficiency import ProblemSpec, problem_spec
+from optim.methods import METHODS
 
 __all__ = ["BenchConfig", "FULL", "QUICK", "BENCH_FILE", "BENCH_TABLES", "run_bench", "write_bench"]
 
@@ -63,7 +64,7 @@ class BenchConfig:
     memory_population: int = 8000
     memory_generations: int = 3
     problems: Tuple[ProblemSpec, ...] = _PROBLEMS
-    methods: Tuple[str, ...] = ("tree", "forest", "univariate", "hillclimb", "random")
+    methods: Tuple[str, ...] = METHODS
     efficiency_population: Union[int, str] = 1000
     seeds: int = 10
     budget: int = 200_000

@@ -53,6 +53,8 @@ class Evaluator:
         Evaluate on a Dask cluster: a scheduler address, ``"local"`` for a
         two-worker ``LocalCluster`` that lives as long as the evaluator, or a
         client to use as it is.
+    calls, cache_hits, failure_count, failures
+        The counts to start from (see Attributes): zero and empty for a new run.
 
     Attributes
     ----------

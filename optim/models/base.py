@@ -118,24 +118,84 @@ class Model(abc.ABC):
 
     @abc.abstractmethod
     def fit(self, X, weights=None) -> "Model":
-        """Estimate the model from samples ``X`` (rows) with optional sample weights."""
+        """Estimate the model from samples ``X`` (rows) with optional sample weights.
+
+        Parameters
+        ----------
+        X : array_like of int, shape (count, n)
+            The samples, values ``0 … cardinality - 1``.
+        weights : array_like of float, shape (count,), or None
+            Non-negative weight of each sample; all equal when ``None``.
+
+        Returns
+        -------
+        Model
+            The model itself, fitted.
+        """
 
     @abc.abstractmethod
     def sample(self, count: int, rng: np.random.Generator) -> np.ndarray:
-        """Draw ``count`` independent vectors as a ``uint8`` array of shape ``(count, n)``."""
+        """Draw ``count`` independent vectors as a ``uint8`` array of shape ``(count, n)``.
+
+        Parameters
+        ----------
+        count : int
+            How many vectors to draw.
+        rng : numpy.random.Generator
+            The random stream the draws come from.
+
+        Returns
+        -------
+        numpy.ndarray
+            The vectors, ``uint8`` of shape ``(count, n)``.
+        """
 
     @abc.abstractmethod
     def log_prob(self, X) -> np.ndarray:
-        """Natural log-probability of each row of ``X``."""
+        """Natural log-probability of each row of ``X``.
+
+        Parameters
+        ----------
+        X : array_like of int, shape (count, n)
+            The vectors to score.
+
+        Returns
+        -------
+        numpy.ndarray
+            ``float64`` of shape ``(count,)``; ``-inf`` for a vector the model cannot produce.
+        """
 
     @abc.abstractmethod
     def entropy(self) -> float:
-        """Exact entropy of the model distribution in nats."""
+        """Exact entropy of the model distribution in nats.
+
+        Returns
+        -------
+        float
+            The entropy, >= 0.
+        """
 
     @abc.abstractmethod
     def get_state(self) -> dict:
-        """The fitted parameters as a dict of numpy arrays and plain numbers."""
+        """The fitted parameters as a dict of numpy arrays and plain numbers.
+
+        Returns
+        -------
+        dict
+            What :meth:`set_state` restores.
+        """
 
     @abc.abstractmethod
     def set_state(self, state: dict) -> "Model":
-        """Restore parameters produced by :meth:`get_state`."""
+        """Restore parameters produced by :meth:`get_state`.
+
+        Parameters
+        ----------
+        state : dict
+            What :meth:`get_state` returned.
+
+        Returns
+        -------
+        Model
+            The model itself, fitted.
+        """

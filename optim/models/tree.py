@@ -59,6 +59,15 @@ class DependencyTree(Model):
     dependency graph is a tree, the fitted one is the closest in
     Kullback-Leibler divergence to the sample's empirical distribution.
 
+    Parameters
+    ----------
+    cardinality : int, sequence of int or None
+        Values per variable; inferred from the first data set when ``None``.
+    prior : float
+        Dirichlet pseudo-count (>= 0) added to every cell of every probability table.
+    root : int
+        The variable the spanning tree grows from (``0 … n-1``).
+
     Attributes (after ``fit``)
     --------------------------
     parents : ndarray of int64, shape (n,)
@@ -194,6 +203,18 @@ class DependencyTree(Model):
         """Ancestral sampling: each variable drawn given its parent, in topological order.
 
         The loop runs over variables; every step is vectorised over the ``count`` candidates.
+
+        Parameters
+        ----------
+        count : int
+            How many vectors to draw.
+        rng : numpy.random.Generator
+            The random stream the draws come from.
+
+        Returns
+        -------
+        numpy.ndarray
+            The vectors, ``uint8`` of shape ``(count, n)``.
         """
         self._require_fitted()
         count = int(count)
@@ -319,6 +340,16 @@ class DependencyTree(Model):
 
         Nodes are variable indices with attributes ``name`` and ``parent``;
         each edge has ``weight`` = mutual information in nats.
+
+        Parameters
+        ----------
+        variable_names : sequence of str or None
+            One name per variable for the ``name`` attribute; ``x0 … x{n-1}`` when ``None``.
+
+        Returns
+        -------
+        networkx.Graph
+            One node per variable, one edge per tree edge.
         """
         import networkx as nx
 

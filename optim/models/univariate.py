@@ -17,6 +17,13 @@ class Univariate(Model):
     each variable's value frequencies among the selected candidates, smoothed
     by ``prior`` pseudo-counts, and no dependencies between variables.
 
+    Parameters
+    ----------
+    cardinality : int, sequence of int or None
+        Values per variable; inferred from the first data set when ``None``.
+    prior : float
+        Dirichlet pseudo-count (>= 0) added to every cell of every probability table.
+
     References
     ----------
     H. Mühlenbein and G. Paaß, "From recombination of genes to the estimation

@@ -14,10 +14,12 @@ A run config has the top-level keys ``name``, ``problem``, ``search``,
       evaluations: 100000
     seed: 1
 
-Defaults live in :class:`optim.search.SearchSettings` and
-:class:`optim.search.StopRules` and in :data:`TOP_LEVEL_DEFAULTS`. Every
-error names the file, the line and the key, what was found and what was
-expected; an unknown key comes with the nearest valid one.
+The defaults and the rules of the ``search`` and ``stop`` keys live in
+:class:`optim.search.SearchSettings` and :class:`optim.search.StopRules`
+(this module only places their errors in the file); the other defaults are
+in :data:`TOP_LEVEL_DEFAULTS`. Every error names the file, the line and the
+key, what was found and what was expected; an unknown key comes with the
+nearest valid one.
 """
 
 from __future__ import annotations
@@ -31,8 +33,8 @@ from typing import Any, Callable, Dict, Optional, Sequence, Tuple
 
 import yaml
 
-from optim.errors import ConfigError
-from optim.methods import METHODS
+from optim.errors import ConfigError, ParameterError, parameter_message
+from optim.parameters import text, whole_number
 from optim.search import SearchSettings, StopRules
 
 __all__ = [
@@ -43,12 +45,7 @@ __all__ = [
     "YamlDocument",
     "Checker",
     "check_problem_parameters",
-    "integer",
-    "number",
-    "boolean",
-    "text",
-    "choice",
-    "optional",
+    "describe_value",
     "TOP_LEVEL_DEFAULTS",
     "SEARCH_KEYS",
     "STOP_KEYS",
@@ -58,14 +55,6 @@ __all__ = [
 TOP_LEVEL_DEFAULTS = {"seed": 0, "out": "runs", "checkpoint_every": 1}
 
 _E_NOTATION = re.compile(r"^[-+]?(\d+\.?\d*|\.\d+)[eE][-+]?\d+$")
-
-
-class _Bad(Exception):
-    """Raised by a validator: ``expected`` says what the value should have been."""
-
-    def __init__(self, expected: str):
-        super().__init__(expected)
-        self.expected = expected
 
 
 # -- reading YAML with line numbers ------------------------------------------------------------
@@ -156,141 +145,24 @@ def _refuse_repeated_keys(node, path: Tuple[str, ...], source: str) -> None:
             _refuse_repeated_keys(item, path + (str(index),), source)
 
 
-# -- validators ---------------------------------------------------------------------------------
-def _describe(value) -> str:
+# -- values ---------------------------------------------------------------------------------------
+def describe_value(value) -> str:
+    """A value as an error message shows it; e-notation read as text comes with how to write it."""
     if isinstance(value, str) and _E_NOTATION.match(value.strip()):
-        return (f"the text {value!r} (YAML reads e-notation without a decimal point as text; "
-                f"write it out, e.g. 100000, or as 1.0e+5)")
+        return (
+            f"the text {value!r} (YAML reads e-notation without a decimal point as text; "
+            f"write it out, e.g. 100000, or as 1.0e+5)"
+        )
     if isinstance(value, (dict, list)):
         return f"a {'mapping' if isinstance(value, dict) else 'list'}"
     return repr(value)
 
 
-def integer(low: Optional[int] = None, high: Optional[int] = None) -> Callable:
-    """Validator for whole numbers (a float with no fractional part is accepted)."""
-    bounds = (f" >= {low}" if low is not None else "") + (f" and <= {high}" if high is not None else "")
-    expected = f"a whole number{bounds}"
+#: The keys of the ``search`` section: the fields of SearchSettings, which holds their defaults and rules.
+SEARCH_KEYS: Tuple[str, ...] = tuple(f.name for f in dataclasses.fields(SearchSettings))
 
-    def check(value):
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise _Bad(expected)
-        if isinstance(value, float) and (not value.is_integer()):
-            raise _Bad(expected)
-        value = int(value)
-        if (low is not None and value < low) or (high is not None and value > high):
-            raise _Bad(expected)
-        return value
-
-    return check
-
-
-def number(low=None, high=None, low_open=False, high_open=False) -> Callable:
-    """Validator for real numbers in an interval."""
-    left = "(" if low_open else "["
-    right = ")" if high_open else "]"
-    if low is not None and high is not None:
-        expected = f"a number in {left}{low}, {high}{right}"
-    elif low is not None:
-        expected = f"a number {'>' if low_open else '>='} {low}"
-    else:
-        expected = "a number"
-
-    def check(value):
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or value != value:
-            raise _Bad(expected)
-        value = float(value)
-        if low is not None and (value < low or (low_open and value == low)):
-            raise _Bad(expected)
-        if high is not None and (value > high or (high_open and value == high)):
-            raise _Bad(expected)
-        return value
-
-    return check
-
-
-def boolean(value):
-    if not isinstance(value, bool):
-        raise _Bad("true or false")
-    return value
-
-
-def text(value):
-    if not isinstance(value, str) or not value.strip():
-        raise _Bad("a non-empty text")
-    return value
-
-
-def choice(options: Sequence[str]) -> Callable:
-    def check(value):
-        if value not in options:
-            raise _Bad("one of " + ", ".join(options))
-        return value
-
-    return check
-
-
-def optional(check: Callable, expected_null: str = "null") -> Callable:
-    def wrapped(value):
-        if value is None:
-            return None
-        try:
-            return check(value)
-        except _Bad as bad:
-            raise _Bad(f"{bad.expected}, or {expected_null}") from None
-
-    return wrapped
-
-
-def _target(value):
-    if value is None or value == "optimum":
-        return value
-    try:
-        return number()(value)
-    except _Bad:
-        raise _Bad("a number, 'optimum' (the problem's known optimum) or null (no target)") from None
-
-
-def _failure_limit(value):
-    expected = "a whole number of failures (>= 1) or a fraction of the evaluations in [0, 1)"
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or value != value or value < 0:
-        raise _Bad(expected)
-    if value >= 1 and not float(value).is_integer():
-        raise _Bad(expected)
-    return int(value) if value >= 1 else float(value)
-
-
-def _population(value):
-    if value == "auto":
-        return value
-    try:
-        return integer(2)(value)
-    except _Bad:
-        raise _Bad("a whole number >= 2, or 'auto' (no fixed population: runs of doubling size share "
-                   "the budget)") from None
-
-
-#: Validators of the ``search`` keys; defaults come from SearchSettings.
-SEARCH_KEYS: Dict[str, Callable] = {
-    "method": choice(METHODS),
-    "population": _population,
-    "select": number(0, 1, low_open=True),
-    "prior": number(0),
-    "elitism": boolean,
-    "alpha": number(0, 1, low_open=True, high_open=True),
-    "jobs": integer(1),
-    "cache": optional(boolean, "null (the problem decides)"),
-    "timeout": optional(number(0, low_open=True), "null (no limit)"),
-    "dask": optional(text, "null (evaluate on this machine)"),
-}
-
-#: Validators of the ``stop`` keys; defaults come from StopRules.
-STOP_KEYS: Dict[str, Callable] = {
-    "evaluations": integer(1),
-    "target": _target,
-    "patience": optional(integer(1)),
-    "collapse": boolean,
-    "max_failures": optional(_failure_limit),
-}
+#: The keys of the ``stop`` section: the fields of StopRules, which holds their defaults and rules.
+STOP_KEYS: Tuple[str, ...] = tuple(f.name for f in dataclasses.fields(StopRules))
 
 _TOP_KEYS = ("name", "problem", "search", "stop", "seed", "out", "checkpoint_every")
 
@@ -342,7 +214,7 @@ class Checker:
         if value is None and not required:
             return {}
         if not isinstance(value, dict):
-            what = "nothing" if value is None else _describe(value)
+            what = "nothing" if value is None else describe_value(value)
             self.fail(path, f"expected a mapping of keys to values; found {what}")
         for key in value:
             if not isinstance(key, str):
@@ -356,11 +228,24 @@ class Checker:
                 hint = f"did you mean '{close[0]}'? " if close else ""
                 self.fail(tuple(path) + (key,), f"unknown key; {hint}valid keys here: {', '.join(valid)}")
 
-    def value(self, check: Callable, value, path: Sequence[str]):
+    def value(self, rule: Callable, value, path: Sequence[str], **bounds):
+        """``rule(name, value, **bounds)``, a rule of :mod:`optim.parameters`, with its error placed at ``path``."""
+        name = next((part for part in reversed(path) if not part.isdigit()), "")
         try:
-            return check(value)
-        except _Bad as bad:
-            self.fail(path, f"expected {bad.expected}; found {_describe(value)}")
+            return rule(name, value, **bounds)
+        except ParameterError as error:
+            self.fail(path, parameter_message(error.parameter, error.expected, describe_value(value)))
+
+    def setting(self, settings_class, key: str, value, path: Sequence[str]):
+        """``value`` of the field ``key`` of ``settings_class``, checked by the class itself.
+
+        ``settings_class`` is :class:`~optim.search.SearchSettings` or :class:`~optim.search.StopRules`;
+        a broken rule is placed at ``path``.
+        """
+        try:
+            return getattr(settings_class(**{key: value}), key)
+        except ParameterError as error:
+            self.fail(path, parameter_message(error.parameter, error.expected, describe_value(value)))
 
 
 def _apply_overrides(doc: YamlDocument, overrides: Sequence[str]) -> None:
@@ -436,32 +321,30 @@ def parse_run_config(doc: YamlDocument, path: Optional[Path] = None, check_probl
     problem["use"] = checker.value(text, problem["use"], ("problem", "use"))
     for key, value in problem.items():
         if isinstance(value, str) and _E_NOTATION.match(value.strip()):
-            checker.fail(("problem", key), f"found {_describe(value)}")
+            checker.fail(("problem", key), f"found {describe_value(value)}")
     if check_problem:
         check_problem_parameters(checker, problem)
 
     search_data = checker.mapping(data.get("search"), ("search",), required=False)
-    checker.unknown(search_data, list(SEARCH_KEYS), ("search",))
-    search_values = {k: checker.value(SEARCH_KEYS[k], v, ("search", k)) for k, v in search_data.items()}
-    search = SearchSettings(**search_values)
+    checker.unknown(search_data, SEARCH_KEYS, ("search",))
+    search = SearchSettings(**{k: checker.setting(SearchSettings, k, v, ("search", k)) for k, v in search_data.items()})
 
     stop_data = checker.mapping(data.get("stop"), ("stop",), required=False)
-    checker.unknown(stop_data, list(STOP_KEYS), ("stop",))
-    stop_values = {k: checker.value(STOP_KEYS[k], v, ("stop", k)) for k, v in stop_data.items()}
-    stop = StopRules(**stop_values)
+    checker.unknown(stop_data, STOP_KEYS, ("stop",))
+    stop = StopRules(**{k: checker.setting(StopRules, k, v, ("stop", k)) for k, v in stop_data.items()})
     if isinstance(search.population, int) and stop.evaluations < search.population:
         where = ("stop", "evaluations") if "evaluations" in stop_data else ("search", "population")
         checker.fail(where, f"the evaluation budget ({stop.evaluations}) is smaller than one population "
                             f"({search.population}); raise stop.evaluations or lower search.population")
 
-    seed = checker.value(integer(0), data.get("seed", TOP_LEVEL_DEFAULTS["seed"]), ("seed",))
+    seed = checker.value(whole_number, data.get("seed", TOP_LEVEL_DEFAULTS["seed"]), ("seed",), least=0)
     out = checker.value(text, data.get("out", TOP_LEVEL_DEFAULTS["out"]), ("out",))
-    every = checker.value(integer(0), data.get("checkpoint_every", TOP_LEVEL_DEFAULTS["checkpoint_every"]),
-                          ("checkpoint_every",))
+    every = checker.value(whole_number, data.get("checkpoint_every", TOP_LEVEL_DEFAULTS["checkpoint_every"]),
+                          ("checkpoint_every",), least=0)
     default_name = path.stem if path is not None else "run"
     name = checker.value(text, data.get("name", default_name), ("name",))
     if re.search(r"[/\\\0]", name):
-        checker.fail(("name",), f"expected a name usable in a folder name (no slashes); found {name!r}")
+        checker.fail(("name",), parameter_message("name", "a name usable in a folder name (no slashes)", repr(name)))
     return RunConfig(name=name, problem=problem, search=search, stop=stop, seed=seed, out=out,
                      checkpoint_every=every, path=path)
 

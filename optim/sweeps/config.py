@@ -48,12 +48,12 @@ from optim.runs.config import (
     Checker,
     YamlDocument,
     check_problem_parameters,
-    integer,
+    describe_value,
     read_yaml,
-    text,
 )
-from optim.errors import ConfigError
+from optim.errors import ConfigError, parameter_message
 from optim.methods import METHODS
+from optim.parameters import text, whole_number
 from optim.search import SearchSettings, StopRules
 
 __all__ = [
@@ -193,11 +193,7 @@ def _parse_problems(checker: Checker, data, check_problem: bool) -> List[Problem
         use = checker.value(text, problem["use"], path + ("use",)).strip()
         for key, value in problem.items():
             if isinstance(value, str) and _E_NOTATION.match(value.strip()):
-                checker.fail(
-                    path + (key,),
-                    f"found the text {value!r} (YAML reads e-notation without a decimal "
-                    f"point as text; write it out, e.g. 100000, or as 1.0e+5)",
-                )
+                checker.fail(path + (key,), f"found {describe_value(value)}")
         if check_problem:
             check_problem_parameters(checker, problem, path, extra_keys=("label",))
         label = checker.value(text, problem["label"], path + ("label",)) if "label" in problem else None
@@ -240,7 +236,7 @@ def _parse_methods(checker: Checker, data) -> List[MethodEntry]:
     for index, raw in enumerate(data):
         path = ("methods", str(index))
         entry = checker.mapping(raw, path)
-        checker.unknown(entry, list(SEARCH_KEYS) + ["label"], path)
+        checker.unknown(entry, SEARCH_KEYS + ("label",), path)
         if "method" not in entry:
             checker.fail(path, f"each method needs a 'method' key: one of {', '.join(METHODS)}")
         label = checker.value(text, entry["label"], path + ("label",)) if "label" in entry else None
@@ -251,10 +247,10 @@ def _parse_methods(checker: Checker, data) -> List[MethodEntry]:
             if isinstance(value, list):
                 if not value:
                     checker.fail(path + (key,), "an empty list gives no settings to try; give at least one value")
-                values = [checker.value(SEARCH_KEYS[key], v, path + (key, str(i))) for i, v in enumerate(value)]
+                values = [checker.setting(SearchSettings, key, v, path + (key, str(i))) for i, v in enumerate(value)]
                 axes.append((key, values, True))
             else:
-                axes.append((key, [checker.value(SEARCH_KEYS[key], value, path + (key,))], False))
+                axes.append((key, [checker.setting(SearchSettings, key, value, path + (key,))], False))
         axes.sort(key=lambda axis: axis[0] != "method")
         method_is_grid = any(is_grid for key, _, is_grid in axes if key == "method")
         for combination in itertools.product(*[values for _, values, _ in axes]):
@@ -282,12 +278,12 @@ def _parse_seeds(checker: Checker, data) -> List[int]:
     if isinstance(data, list):
         if not data:
             checker.fail(("seeds",), "expected at least one seed index")
-        seeds = [checker.value(integer(0), v, ("seeds", str(i))) for i, v in enumerate(data)]
+        seeds = [checker.value(whole_number, v, ("seeds", str(i)), least=0) for i, v in enumerate(data)]
         for i, value in enumerate(seeds):
             if value in seeds[:i]:
                 checker.fail(("seeds", str(i)), f"the seed index {value} is listed twice")
         return seeds
-    count = checker.value(integer(1), data, ("seeds",))
+    count = checker.value(whole_number, data, ("seeds",), least=1)
     return list(range(count))
 
 
@@ -304,8 +300,8 @@ def parse_sweep_config(doc: YamlDocument, path: Optional[Path] = None, check_pro
     seeds = _parse_seeds(checker, data.get("seeds", 1))
 
     stop_data = checker.mapping(data.get("stop"), ("stop",), required=False)
-    checker.unknown(stop_data, list(STOP_KEYS), ("stop",))
-    stop = StopRules(**{k: checker.value(STOP_KEYS[k], v, ("stop", k)) for k, v in stop_data.items()})
+    checker.unknown(stop_data, STOP_KEYS, ("stop",))
+    stop = StopRules(**{k: checker.setting(StopRules, k, v, ("stop", k)) for k, v in stop_data.items()})
     for method in methods:
         population = method.settings.population
         if isinstance(population, int) and stop.evaluations < population:
@@ -315,11 +311,11 @@ def parse_sweep_config(doc: YamlDocument, path: Optional[Path] = None, check_pro
                 f"({method.settings.population}) of {method.label!r}",
             )
 
-    root = checker.value(integer(0), data.get("seed", 0), ("seed",))
+    root = checker.value(whole_number, data.get("seed", 0), ("seed",), least=0)
     out = checker.value(text, data.get("out", "runs/sweeps"), ("out",))
     name = checker.value(text, data.get("name", path.stem if path is not None else "sweep"), ("name",))
     if re.search(r"[/\\\0]", name) or name in (".", ".."):
-        checker.fail(("name",), f"expected a name usable as a folder name (no slashes); found {name!r}")
+        checker.fail(("name",), parameter_message("name", "a name usable as a folder name (no slashes)", repr(name)))
     config = SweepConfig(
         name=name, problems=problems, methods=methods, seeds=seeds, stop=stop, seed=root, out=out, path=path
     )
