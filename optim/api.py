@@ -6,7 +6,7 @@ from typing import Callable, Optional, Union
 
 from optim.errors import ParameterError
 from optim.problem import FunctionProblem, Problem
-from optim.search import Search, SearchResult, SearchSettings, StopRules
+from optim.search import SearchResult, SearchSettings, StopRules, run_search
 
 __all__ = ["maximize", "minimize", "optimize"]
 
@@ -123,9 +123,7 @@ def optimize(
         )
     except ParameterError as error:
         raise (error.renamed("budget") if error.parameter == "evaluations" else error) from None
-    search = Search(problem, settings, stop, seed=seed)
-    with search.evaluator:  # worker processes or a cluster connection live as long as the search
-        return search.run(on_generation)
+    return run_search(problem, settings, stop, seed, on_generation)
 
 
 def maximize(objective, n=None, method: str = "tree", **options) -> SearchResult:

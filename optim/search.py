@@ -11,8 +11,9 @@ The goal (maximise or minimise) is handled here and only here: methods see a
 from __future__ import annotations
 
 import time
+from contextlib import contextmanager
 from dataclasses import dataclass, field
-from typing import Callable, List, Optional
+from typing import Callable, Iterator, List, Optional
 
 import numpy as np
 
@@ -21,7 +22,7 @@ from optim.methods import make_method
 from optim.problem import Problem
 from optim.settings import SearchSettings, StopRules
 
-__all__ = ["SearchSettings", "StopRules", "SearchResult", "Search", "STOP_REASONS"]
+__all__ = ["SearchSettings", "StopRules", "SearchResult", "Search", "STOP_REASONS", "open_search", "run_search"]
 
 #: Why a run ended.
 STOP_REASONS = {
@@ -375,3 +376,57 @@ class Search:
         self.rng.bit_generator.state = state["rng"]
         self.method.set_state(state["method"])
         self.evaluator.set_state(state["evaluator"])
+
+
+@contextmanager
+def open_search(
+    problem: Problem,
+    settings: Optional[SearchSettings] = None,
+    stop: Optional[StopRules] = None,
+    seed: int = 0,
+) -> Iterator[Search]:
+    """A :class:`Search` whose evaluator lives exactly as long as the ``with`` block.
+
+    Every entry point drives its searches through this (the Python API, the runner, sweeps and the
+    benchmarks): worker processes, a Dask cluster or its connection start with the search and are
+    closed when the block ends, however it ends.
+
+    Parameters
+    ----------
+    problem : Problem
+        The objective.
+    settings : SearchSettings or None
+        The method and its parameters (the defaults when ``None``).
+    stop : StopRules or None
+        When to stop (the defaults when ``None``).
+    seed : int
+        The run's seed.
+
+    Yields
+    ------
+    Search
+        The search, not yet stepped.
+    """
+    search = Search(problem, settings, stop, seed=seed)
+    with search.evaluator:
+        yield search
+
+
+def run_search(
+    problem: Problem,
+    settings: Optional[SearchSettings] = None,
+    stop: Optional[StopRules] = None,
+    seed: int = 0,
+    on_generation: Optional[Callable[[Search, dict], None]] = None,
+) -> SearchResult:
+    """Run a search to its end in :func:`open_search`; the parameters are those of :func:`open_search`.
+
+    ``on_generation(search, record)`` is called after each step.
+
+    Returns
+    -------
+    SearchResult
+        The outcome of the run.
+    """
+    with open_search(problem, settings, stop, seed) as search:
+        return search.run(on_generation)

@@ -184,3 +184,41 @@ def test_a_broken_objective_stops_the_run_with_a_clear_reason():
     assert result.evaluations < 1000 and result.failures == result.evaluations
     counted = optim.maximize(broken, n=5, population=10, budget=1000, max_failures=3, seed=1)
     assert counted.stop_reason == "failures" and counted.failures == 10  # stops after the first generation (10 > 3)
+
+
+# -- one way to drive a search: open_search owns the evaluator's lifetime ----------------------------------------
+def _count_ones(x):
+    return float(x.sum())
+
+
+def test_open_search_closes_the_workers_it_started_however_the_block_ends():
+    from optim.problem import FunctionProblem
+    from optim.search import open_search
+
+    problem = FunctionProblem(_count_ones, 6)
+    settings = SearchSettings(method="random", population=8, jobs=2)
+    with open_search(problem, settings, StopRules(evaluations=16), seed=3) as search:
+        search.step()
+        backend = search.evaluator._backend
+        assert backend is not None  # two jobs: the candidates were scored by worker processes
+    assert search.evaluator._backend is None
+    with pytest.raises(KeyError):
+        with open_search(problem, settings, StopRules(evaluations=16), seed=3) as search:
+            search.step()
+            assert search.evaluator._backend is not None
+            raise KeyError("the caller's own error")
+    assert search.evaluator._backend is None
+
+
+def test_run_search_gives_the_same_run_as_stepping_by_hand():
+    from optim.search import run_search
+
+    problem = onemax(n=20)
+    settings, stop = SearchSettings(population=40), StopRules(evaluations=600)
+    result = run_search(problem, settings, stop, seed=4)
+    by_hand = Search(problem, settings, stop, seed=4)
+    while not by_hand.finished:
+        by_hand.step()
+    timeless = [{k: v for k, v in r.items() if k not in ("seconds", "time")} for r in result.history]
+    assert timeless == [{k: v for k, v in r.items() if k not in ("seconds", "time")} for r in by_hand.history]
+    assert np.array_equal(result.best_solution, by_hand.best_solution)

@@ -82,19 +82,18 @@ class Task:
 
 def run_task(task: Task) -> dict:
     """Run one search to its end; returns the evaluations to the optimum (or ``None``) and the cost."""
-    from optim.search import Search, SearchSettings, StopRules
+    from optim.search import SearchSettings, StopRules, run_search
 
     start = time.perf_counter()
     limits = _one_blas_thread()
     try:
         problem = task.spec.build(task.seed)
-        search = Search(
+        result = run_search(
             problem,
             SearchSettings(method=task.method, population=task.population),
             StopRules(evaluations=task.budget, target="optimum"),
             seed=task.seed,
         )
-        result = search.run()
     finally:
         if limits is not None:
             limits.unregister()

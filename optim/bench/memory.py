@@ -44,17 +44,17 @@ def child_main(arguments: Sequence[str]) -> None:
     """Entry point of the child: ``n population generations seed``; prints one JSON line."""
     n, population, generations, seed = (int(a) for a in arguments)
     from optim.objectives import make_problem
-    from optim.search import Search, SearchSettings, StopRules
+    from optim.search import SearchSettings, StopRules, open_search
 
     baseline = _peak_megabytes()
-    search = Search(
+    with open_search(
         make_problem("onemax", {"n": n}),
         SearchSettings(method="tree", population=population),
         StopRules(evaluations=10**12, target=None, collapse=False),
         seed=seed,
-    )
-    for _ in range(generations):
-        search.step()
+    ) as search:
+        for _ in range(generations):
+            search.step()
     print(json.dumps({"baseline_mb": baseline, "peak_mb": _peak_megabytes(), "evaluations": search.evaluations}))
 
 

@@ -205,26 +205,26 @@ def measure_generation(n: int, population: int, generations: int, seed: int = 0)
     over the timed generations are reported.
     """
     from optim.objectives import make_problem
-    from optim.search import Search, SearchSettings, StopRules
+    from optim.search import SearchSettings, StopRules, open_search
 
     problem = make_problem("onemax", {"n": n})
-    search = Search(
+    parts: Dict[str, List[float]] = {"fit": [], "sample": [], "evaluate": [], "bookkeeping": [], "step": []}
+    with open_search(
         problem,
         SearchSettings(method="tree", population=population),
         StopRules(evaluations=10**12, target=None, collapse=False),
         seed=seed,
-    )
-    search.step()
-    parts: Dict[str, List[float]] = {"fit": [], "sample": [], "evaluate": [], "bookkeeping": [], "step": []}
-    for _ in range(int(generations)):
-        wall = _seconds(search.step)
-        timing = search.history[-1]["time"]
-        for key in ("fit", "sample", "evaluate"):
-            parts[key].append(float(timing.get(key, 0.0)))
-        parts["bookkeeping"].append(
-            max(wall - sum(float(timing.get(k, 0.0)) for k in ("fit", "sample", "evaluate")), 0.0)
-        )
-        parts["step"].append(wall)
+    ) as search:
+        search.step()
+        for _ in range(int(generations)):
+            wall = _seconds(search.step)
+            timing = search.history[-1]["time"]
+            for key in ("fit", "sample", "evaluate"):
+                parts[key].append(float(timing.get(key, 0.0)))
+            parts["bookkeeping"].append(
+                max(wall - sum(float(timing.get(k, 0.0)) for k in ("fit", "sample", "evaluate")), 0.0)
+            )
+            parts["step"].append(wall)
     seconds = {key: median(values) for key, values in parts.items()}
     return {
         "problem": f"onemax n={n}",

@@ -37,7 +37,7 @@ import yaml
 from optim import __version__
 from optim.errors import ConfigError, OptimError, RunFolderError
 from optim.runs.folder import atomic_write, read_jsonl, to_json
-from optim.search import Search, StopRules
+from optim.search import StopRules, run_search
 from optim.sweeps.config import Job, SweepConfig
 
 __all__ = ["SweepStore", "SweepOutcome", "SweepProgress", "run_job", "run_sweep", "build_job_problem"]
@@ -70,8 +70,7 @@ def run_job(job: Job, stop: StopRules, base_dir: str) -> Tuple[dict, dict]:
     """
     started = time.perf_counter()
     problem = build_job_problem(job.problem.use, job.problem.params, base_dir)
-    search = Search(problem, job.method.settings, stop, seed=job.run_seed)
-    result = search.run()
+    result = run_search(problem, job.method.settings, stop, seed=job.run_seed)
     seconds = time.perf_counter() - started
     record = {
         "job": job.job,
