@@ -26,7 +26,8 @@ from optim.explain.findings import (
     wilson_interval,
 )
 from optim.info import mutual_information
-from optim.runs.folder import RunFolder, read_jsonl
+from optim.files import read_jsonl
+from optim.runs.folder import RunFolder
 from optim_problems.service_demo import PLANTED, service_latency
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -378,7 +378,7 @@ def test_the_factory_documents_every_parameter_and_the_caution():
 
 def test_a_config_run_records_failures_and_goes_on(tmp_path):
     from optim.runs.config import load_run_config
-    from optim.runs.folder import read_jsonl
+    from optim.files import read_jsonl
     from optim.runs.runner import execute
 
     executable_tool(tmp_path)

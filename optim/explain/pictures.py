@@ -20,7 +20,7 @@ from typing import Dict, List, Optional, Tuple
 import numpy as np
 
 from optim.explain.findings import Explanation
-from optim.runs.folder import atomic_write
+from optim.files import atomic_write
 
 __all__ = ["MAX_LABELLED", "PICTURES", "pictures_unavailable", "write_pictures"]
 

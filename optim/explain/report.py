@@ -10,7 +10,7 @@ from typing import Dict, List, Mapping, Optional
 import numpy as np
 
 from optim.explain.findings import FEW_CANDIDATES, Explanation, LinkFinding, PairFinding, VariableFinding, pair_sentence
-from optim.runs.folder import atomic_write
+from optim.files import atomic_write
 
 __all__ = ["FORMAT", "MARKDOWN", "JSON", "render_markdown", "to_document", "short_lines", "write_reports"]
 

@@ -35,92 +35,15 @@ from __future__ import annotations
 import datetime as _dt
 import json
 import os
-import tempfile
 from pathlib import Path
 from typing import Iterable, Optional
 
 import yaml
 
 from optim.errors import RunFolderError
+from optim.files import atomic_write, read_jsonl, to_json, to_json_document
 
-__all__ = ["RunFolder", "atomic_write", "read_jsonl"]
-
-
-def _fsync_folder(folder: Path) -> None:
-    try:
-        fd = os.open(folder, os.O_RDONLY)
-    except OSError:
-        return
-    try:
-        os.fsync(fd)
-    except OSError:
-        pass
-    finally:
-        os.close(fd)
-
-
-def _umask() -> int:
-    mask = os.umask(0)
-    os.umask(mask)
-    return mask
-
-
-def atomic_write(path, data: bytes) -> None:
-    """Replace ``path`` with ``data`` so that readers see the old or the new file, never a mix."""
-    path = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; give the file the usual permissions
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(data)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-    _fsync_folder(path.parent)
-
-
-def read_jsonl(path, with_lines: bool = False) -> list:
-    """Records of a JSON Lines file; a torn last line (no newline) is ignored.
-
-    With ``with_lines``, each entry is ``(line number, record)`` so callers can report where a bad record is.
-    """
-    path = Path(path)
-    if not path.exists():
-        return []
-    records = []
-    with path.open("r", encoding="utf-8") as handle:
-        for number, line in enumerate(handle, 1):
-            if not line.endswith("\n"):
-                break
-            if line.strip():
-                try:
-                    record = json.loads(line)
-                except json.JSONDecodeError as exc:
-                    raise RunFolderError(f"{path}:{number}: not valid JSON ({exc.msg})") from None
-                records.append((number, record) if with_lines else record)
-    return records
-
-
-def _json_default(value):
-    import numpy as np
-
-    if isinstance(value, np.integer):
-        return int(value)
-    if isinstance(value, np.floating):
-        return float(value)
-    if isinstance(value, np.ndarray):
-        return value.tolist()
-    raise TypeError(f"cannot write {type(value).__name__} as JSON")
-
-
-def to_json(value) -> str:
-    return json.dumps(value, default=_json_default, allow_nan=False, separators=(",", ":"))
+__all__ = ["RunFolder"]
 
 
 class RunFolder:
@@ -167,7 +90,7 @@ class RunFolder:
         atomic_write(self.file(self.CONFIG), yaml.safe_dump(config, sort_keys=False).encode("utf-8"))
 
     def write_result(self, result: dict) -> None:
-        atomic_write(self.file(self.RESULT), (json.dumps(result, default=_json_default, indent=2) + "\n").encode())
+        atomic_write(self.file(self.RESULT), to_json_document(result))
 
     def append(self, name: str, records: Iterable[dict]) -> None:
         """Append records to a JSON Lines file, one ``write`` and one sync for the batch."""
@@ -272,7 +195,7 @@ class RunFolder:
                 pass
 
     def write_info(self, info: dict) -> None:
-        atomic_write(self.file(self.INFO), (json.dumps(info, default=_json_default, indent=2) + "\n").encode())
+        atomic_write(self.file(self.INFO), to_json_document(info))
 
     def read_info(self) -> dict:
         path = self.file(self.INFO)

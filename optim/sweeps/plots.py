@@ -17,7 +17,7 @@ from typing import Mapping, Optional, Sequence, Tuple
 import numpy as np
 
 from optim.errors import OptimError
-from optim.runs.folder import atomic_write
+from optim.files import atomic_write
 
 __all__ = [
     "pyplot",

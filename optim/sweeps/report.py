@@ -37,7 +37,7 @@ import numpy as np
 from optim.runs.config import read_yaml
 from optim.errors import OptimError, RunFolderError
 from optim.sweeps.plots import PLOT_EXTRA_HINT, convergence_plot, ecdf_plot, plots_available
-from optim.runs.folder import atomic_write
+from optim.files import atomic_write
 from optim.sweeps.running import SweepStore
 from optim.sweeps.config import SweepConfig, parse_sweep_config
 
