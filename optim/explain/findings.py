@@ -33,19 +33,16 @@ fitted on (Sokal & Rohlf, *Biometry*, 1981).
 
 from __future__ import annotations
 
-import json
 import math
-import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from statistics import NormalDist
 from typing import Dict, List, NamedTuple, Optional, Sequence, Tuple
 
 import numpy as np
-import yaml
 
 from optim.errors import RunFolderError
-from optim.runs.folder import RunFolder, read_jsonl
+from optim.runs.folder import RunFolder
 from optim.stats import chi2_sf
 
 __all__ = [
@@ -497,82 +494,8 @@ class RunData:
         return self.result is not None
 
     @property
-    def tree_file(self) -> Optional[Path]:
-        path = self.path / RunFolder.TREE
-        return path if path.exists() else None
-
-
-def _read_json(path: Path) -> Optional[dict]:
-    if not path.exists():
-        return None
-    try:
-        value = json.loads(path.read_text(encoding="utf-8"))
-    except json.JSONDecodeError as exc:
-        raise RunFolderError(f"{path}:{exc.lineno}: not valid JSON ({exc.msg})") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise RunFolderError(f"{path}: cannot be read ({exc})") from None
-    if not isinstance(value, dict):
-        raise RunFolderError(f"{path}:1: expected a JSON object")
-    return value
-
-
-def _read_config(path: Path) -> dict:
-    try:
-        data = yaml.safe_load(path.read_text(encoding="utf-8"))
-    except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        line = f":{mark.line + 1}" if mark is not None else ""
-        raise RunFolderError(f"{path}{line}: not valid YAML") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise RunFolderError(f"{path}: cannot be read ({exc})") from None
-    if not isinstance(data, dict):
-        raise RunFolderError(f"{path}:1: expected a mapping (a resolved run config)")
-    return data
-
-
-def _read_trees(path: Path, n: int) -> List[dict]:
-    """``trees.jsonl`` records, checked; a torn last line (no newline) is ignored."""
-    records = []
-    for number, record in read_jsonl(path, with_lines=True):
-        where = f"{path}:{number}"
-        if (
-            not isinstance(record, dict)
-            or not isinstance(record.get("generation"), int)
-            or not isinstance(record.get("edges"), list)
-        ):
-            raise RunFolderError(
-                f"{where}: expected an object with 'generation' (a whole number) and "
-                f"'edges' (a list of [parent, child, mutual information])"
-            )
-        for edge in record["edges"]:
-            if (
-                not isinstance(edge, list)
-                or len(edge) != 3
-                or not all(isinstance(v, int) and 0 <= v < n for v in edge[:2])
-                or not isinstance(edge[2], (int, float))
-            ):
-                raise RunFolderError(
-                    f"{where}: expected each edge as [parent, child, mutual information] "
-                    f"with variable indices 0..{n - 1}; found {edge!r}"
-                )
-        fitted_on = record.get("fitted_on")
-        if fitted_on is not None and (not isinstance(fitted_on, int) or fitted_on < 1):
-            raise RunFolderError(f"{where}: 'fitted_on' must be a positive whole number; found {fitted_on!r}")
-        records.append(record)
-    return records
-
-
-def _read_evaluated(folder: RunFolder, n: Optional[int]):
-    npz = folder.file(RunFolder.EVALUATED)
-    try:
-        evaluated = folder.read_evaluated()
-    except (OSError, ValueError, KeyError, zipfile.BadZipFile) as exc:
-        raise RunFolderError(f"{npz}: cannot be read as evaluated candidates ({exc})") from None
-    if evaluated is not None:
-        return evaluated
-    if folder.file(RunFolder.EVALUATED_PART).exists() and n is not None:
-        return folder.read_evaluated_part(n)
-    return None
+    def folder(self) -> RunFolder:
+        return RunFolder(self.path)
 
 
 def load_run(run_dir) -> RunData:
@@ -581,17 +504,14 @@ def load_run(run_dir) -> RunData:
     path = folder.path
     if not path.is_dir():
         raise RunFolderError(f"{path}: no such run folder")
-    config_path = folder.file(RunFolder.CONFIG)
-    if not config_path.exists():
-        raise RunFolderError(f"{path}: not a run folder (no {RunFolder.CONFIG})")
-    config = _read_config(config_path)
-    result = _read_json(folder.file(RunFolder.RESULT))
-    info = _read_json(folder.file("run.json")) or {}
+    config = folder.read_config()
+    result = folder.read_result()
+    info = folder.read_info(required=False) or {}
     described = info.get("problem") if isinstance(info.get("problem"), dict) else None
     described = described or config.get("problem_summary") or {}
     names = (result or {}).get("variable_names") or info.get("variable_names") or described.get("variable_names")
     n_hint = len(names) if names else described.get("n")
-    evaluated = _read_evaluated(folder, n_hint if isinstance(n_hint, int) else None)
+    evaluated = folder.read_evaluated(n_hint if isinstance(n_hint, int) else None)
     if evaluated is None:
         raise RunFolderError(
             f"{path}: incomplete run folder: no evaluated candidates ({RunFolder.EVALUATED}); "
@@ -644,8 +564,8 @@ def load_run(run_dir) -> RunData:
         candidates=candidates.astype(np.uint8),
         scores=scores.astype(np.float64),
         generation=generation.astype(np.int64),
-        log=read_jsonl(folder.file(RunFolder.LOG)),
-        trees=_read_trees(folder.file(RunFolder.TREES), n),
+        log=folder.read_log(),
+        trees=folder.read_trees(n),
         search=search,
         result=result,
         optimum=float(described["optimum"]) if isinstance(described.get("optimum"), (int, float)) else None,

@@ -19,6 +19,7 @@ from typing import Dict, List, Optional, Tuple
 
 import numpy as np
 
+from optim.errors import RunFolderError
 from optim.explain.findings import Explanation
 from optim.files import atomic_write
 
@@ -63,11 +64,12 @@ def _read_tree(explanation: Explanation):
     import networkx as nx
 
     data = explanation.data
-    if data.tree_file is not None:
-        try:
-            return nx.read_graphml(data.tree_file, node_type=int)
-        except Exception:  # a damaged file falls back on trees.jsonl
-            pass
+    try:
+        graph = data.folder.read_tree()
+    except RunFolderError:  # a damaged file falls back on trees.jsonl
+        graph = None
+    if graph is not None:
+        return graph
     if not data.trees:
         return None
     graph = nx.Graph()

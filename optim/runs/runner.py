@@ -10,7 +10,6 @@ from pathlib import Path
 from typing import Callable, Optional
 
 from optim import __version__
-from optim.runs.checkpoint import load_checkpoint, save_checkpoint
 from optim.runs.config import RunConfig
 from optim.errors import ConfigError, OptimError, RunFolderError
 from optim.runs.folder import RunFolder
@@ -86,18 +85,14 @@ class Interrupted(OptimError):
         return 128 + self.signum
 
 
-def _tree_edges_record(generation: int, model) -> Optional[dict]:
+def _record_tree(folder: RunFolder, generation: int, model) -> None:
+    """Append the generation's tree to ``trees.jsonl`` when the method's model is a tree or forest."""
     if model is None or not hasattr(model, "edges"):
-        return None
+        return
     edges = model.edges()
-    record = {
-        "generation": generation,
-        "edges": [[int(p), int(c), round(float(model.edge_information[c]), 8)] for p, c in edges],
-    }
     fit_sample = getattr(model, "_fit_sample", None)  # the survivors the tree was fitted on (optim explain's N)
-    if fit_sample is not None:
-        record["fitted_on"] = int(fit_sample[0].shape[0])
-    return record
+    fitted_on = None if fit_sample is None else fit_sample[0].shape[0]
+    folder.append_tree(generation, edges, model.edge_information[edges[:, 1]], fitted_on)
 
 
 class _SignalGuard:
@@ -140,7 +135,7 @@ class _StepAborted(BaseException):
 def _checkpoint(folder: RunFolder, state: dict, rows: int) -> None:
     info = {"version": __version__, "generation": state["generation"], "evaluations": state["evaluations"],
             "evaluated_rows": rows}
-    save_checkpoint(folder.file(RunFolder.CHECKPOINT), state, info)
+    folder.write_checkpoint(state, info)
 
 
 def _drive(search: Search, folder: RunFolder, problem, every: int, rows: int,
@@ -168,11 +163,8 @@ def _drive(search: Search, folder: RunFolder, problem, every: int, rows: int,
             rows += search.last_candidates.shape[0]
             failures = search.evaluator.take_failures()
             if failures:
-                folder.append(RunFolder.FAILURES,
-                              [dict(f.to_dict(), generation=entry["generation"]) for f in failures])
-            tree = _tree_edges_record(entry["generation"], search.method.model())
-            if tree is not None:
-                folder.append(RunFolder.TREES, [tree])
+                folder.append_failures(entry["generation"], [f.to_dict() for f in failures])
+            _record_tree(folder, entry["generation"], search.method.model())
             folder.append_log(entry)
             if search.finished or guard.received is not None or (every and search.generation % every == 0):
                 _checkpoint(folder, search.get_state(), rows)
@@ -213,8 +205,6 @@ def execute(config: RunConfig, problem=None, on_generation: Optional[Callable] =
 
 def resume(run_dir, on_generation: Optional[Callable] = None) -> RunOutcome:
     """Continue a stopped run from its last checkpoint, exactly as if it had never stopped."""
-    from optim.runs.config import load_run_config
-
     folder = RunFolder(run_dir)
     if not folder.path.is_dir():
         raise RunFolderError(f"{folder.path}: no such run folder")
@@ -223,11 +213,11 @@ def resume(run_dir, on_generation: Optional[Callable] = None) -> RunOutcome:
     if finished is not None:
         raise RunFolderError(f"{folder.path}: this run is finished ({finished.get('stop_reason')}, best score "
                              f"{finished.get('best_score')}); there is nothing to resume")
-    state, saved = load_checkpoint(folder.file(RunFolder.CHECKPOINT))
+    state, saved = folder.read_checkpoint()
     if saved.get("version") != __version__:
         raise RunFolderError(f"{folder.path}: the run was made by optim {saved.get('version')}, this is optim "
                              f"{__version__}; resume it with that version")
-    config = load_run_config(folder.file(RunFolder.CONFIG))
+    config = folder.read_run_config()
     config.path = Path(info["config_dir"]) / "config.yaml"  # relative problem paths as in the original run
     problem = build_problem(config)
     search = Search(problem, config.search, config.stop, seed=config.seed)
