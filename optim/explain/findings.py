@@ -37,7 +37,7 @@ import math
 from dataclasses import dataclass, field
 from pathlib import Path
 from statistics import NormalDist
-from typing import Dict, List, NamedTuple, Optional, Sequence, Tuple
+from typing import List, NamedTuple, Optional, Sequence, Tuple
 
 import numpy as np
 
@@ -63,7 +63,6 @@ __all__ = [
     "PairShape",
     "classify_pair",
     "family_threshold",
-    "fitted_sizes",
     "VariableFinding",
     "PairFinding",
     "LinkFinding",
@@ -448,26 +447,6 @@ def classify_pair(
     return PairShape("conflict", False, bool(all(alone) and g11 < min(g10, g01)), best, alone)
 
 
-def fitted_sizes(generation_counts: Sequence[int], select: float, elitism: bool) -> Dict[int, int]:
-    """Survivors the model was fitted on at each generation ≥ 1, replaying truncation selection.
-
-    Generation 0's pool is its evaluated candidates; each later pool is the
-    survivors plus the new candidates (with elitism) or the new candidates only.
-    The survivors of a pool of ``p`` are ``min(p, max(2, ceil(select · p)))``
-    (as in :func:`optim.methods.eda.truncation_select`).
-    """
-    sizes: Dict[int, int] = {}
-    if not len(generation_counts):
-        return sizes
-    pool = int(generation_counts[0])
-    for generation in range(1, len(generation_counts)):
-        kept = min(pool, max(2, int(math.ceil(select * pool - 1e-9))))
-        sizes[generation] = kept
-        new = int(generation_counts[generation])
-        pool = kept + new if elitism else new
-    return sizes
-
-
 # -- reading a run folder -----------------------------------------------------------------------
 @dataclass
 class RunData:
@@ -712,11 +691,9 @@ def _links(data: RunData) -> Tuple[List[LinkFinding], Optional[np.ndarray]]:
     n = len(data.variable_names)
     if not data.trees or n < 2:
         return [], None
-    counts = np.bincount(data.generation, minlength=int(data.generation.max()) + 1)
-    replayed = fitted_sizes(counts, float(data.search.get("select", 0.5)), bool(data.search.get("elitism", True)))
     rows = []
     for record in data.trees:
-        size = record.get("fitted_on") or replayed.get(record["generation"])
+        size = record.get("fitted_on")  # the survivors the tree was fitted on, as the run recorded them
         if size is None:
             continue
         for parent, child, information in record["edges"]:

@@ -85,14 +85,13 @@ class Interrupted(OptimError):
         return 128 + self.signum
 
 
-def _record_tree(folder: RunFolder, generation: int, model) -> None:
+def _record_tree(folder: RunFolder, generation: int, method) -> None:
     """Append the generation's tree to ``trees.jsonl`` when the method's model is a tree or forest."""
+    model = method.model()
     if model is None or not hasattr(model, "edges"):
         return
     edges = model.edges()
-    fit_sample = getattr(model, "_fit_sample", None)  # the survivors the tree was fitted on (optim explain's N)
-    fitted_on = None if fit_sample is None else fit_sample[0].shape[0]
-    folder.append_tree(generation, edges, model.edge_information[edges[:, 1]], fitted_on)
+    folder.append_tree(generation, edges, model.edge_information[edges[:, 1]], method.fitted_on)
 
 
 class _SignalGuard:
@@ -164,7 +163,7 @@ def _drive(search: Search, folder: RunFolder, problem, every: int, rows: int,
             failures = search.evaluator.take_failures()
             if failures:
                 folder.append_failures(entry["generation"], [f.to_dict() for f in failures])
-            _record_tree(folder, entry["generation"], search.method.model())
+            _record_tree(folder, entry["generation"], search.method)
             folder.append_log(entry)
             if search.finished or guard.received is not None or (every and search.generation % every == 0):
                 _checkpoint(folder, search.get_state(), rows)
