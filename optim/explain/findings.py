@@ -43,7 +43,7 @@ import numpy as np
 
 from optim.errors import RunFolderError
 from optim.runs.folder import RunFolder
-from optim.stats import chi2_sf
+from optim.stats import g_test_p_value
 
 __all__ = [
     "BEST_FRACTION",
@@ -52,7 +52,6 @@ __all__ = [
     "RunData",
     "load_run",
     "wilson_interval",
-    "pair_p_value",
     "best_candidates",
     "favoured_values",
     "MainEffects",
@@ -119,17 +118,6 @@ def wilson_interval(successes, trials, confidence: float = _CONFIDENCE) -> Tuple
     lower = np.where(k == 0, 0.0, np.clip(centre - half, 0.0, 1.0))
     upper = np.where(k == n, 1.0, np.clip(centre + half, 0.0, 1.0))
     return lower, upper
-
-
-def pair_p_value(mutual_information, fitted_on, df) -> np.ndarray:
-    """P-value of the G-test of independence, G = 2·N·MI (MI in nats), against χ² with ``df``.
-
-    References
-    ----------
-    R. R. Sokal and F. J. Rohlf, *Biometry*, 1981 (the G-test of independence).
-    """
-    g = 2.0 * np.asarray(fitted_on, dtype=np.float64) * np.maximum(np.asarray(mutual_information, float), 0.0)
-    return chi2_sf(g, df)
 
 
 def best_candidates(
@@ -711,7 +699,7 @@ def _links(data: RunData) -> Tuple[List[LinkFinding], Optional[np.ndarray]]:
     first[1:] = code[order][1:] != code[order][:-1]
     peak = order[first]
     linked = np.bincount(code, minlength=n * n)
-    p_values = pair_p_value(information[peak], size[peak], df[peak])
+    p_values = g_test_p_value(information[peak], size[peak], df[peak])
     tests = n * (n - 1) // 2 * len({record["generation"] for record in data.trees})
     links = [
         LinkFinding(
