@@ -12,15 +12,14 @@ import scipy.linalg
 import scipy.stats
 
 from optim.cli import main
-from optim.explain.findings import (
+from optim.explain import explain_run, run_summary
+from optim.explain.effects import (
     adjusted_effects,
     best_candidates,
     classify_pair,
-    explain_run,
     favoured_values,
     interaction_contrasts,
     main_effects,
-    run_summary,
     wilson_interval,
 )
 from optim.files import read_jsonl

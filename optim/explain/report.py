@@ -9,7 +9,8 @@ from typing import Dict, List, Mapping, Optional
 
 import numpy as np
 
-from optim.explain.findings import FEW_CANDIDATES, Explanation, LinkFinding, PairFinding, VariableFinding, pair_sentence
+from optim.explain.findings import FEW_CANDIDATES, Explanation, PairFinding, VariableFinding, pair_sentence
+from optim.explain.links import LinkFinding
 from optim.files import atomic_write
 
 __all__ = ["FORMAT", "MARKDOWN", "JSON", "render_markdown", "to_document", "short_lines", "write_reports"]
