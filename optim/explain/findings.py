@@ -39,10 +39,10 @@ from optim.explain.effects import (
 )
 from optim.explain.links import LinkFinding, model_links
 from optim.explain.loading import RunData, load_run
+from optim.methods import learns_model
 
 __all__ = [
     "FEW_CANDIDATES",
-    "MODEL_METHODS",
     "VariableFinding",
     "PairFinding",
     "Explanation",
@@ -52,8 +52,12 @@ __all__ = [
 
 #: Below this many candidates in a group or cell, estimates come with a caution.
 FEW_CANDIDATES = 10
-#: Methods that propose candidates by sampling a fitted probability model.
-MODEL_METHODS = ("tree", "forest", "univariate")
+#: Why a run of these methods has no dependency tree, in words.
+_WITHOUT_TREE = {
+    "univariate": "treats every variable as independent",
+    "hillclimb": "does not fit a probability model",
+    "random": "draws candidates uniformly at random",
+}
 
 
 @dataclass
@@ -377,19 +381,15 @@ def explain_run(
                 f"{len(thin)} of the listed pairs have a combination of values seen in fewer than "
                 f"{FEW_CANDIDATES} candidates (marked 'few'); their estimates are fragile."
             )
+    without_tree = _WITHOUT_TREE.get(data.method)
     if data.trees:
         links_reason = ""
-    elif data.method in MODEL_METHODS and data.method != "univariate":
+    elif without_tree is None and learns_model(data.method):
         links_reason = "The run folder has no trees.jsonl, so the links the model learned are unknown."
     else:
-        what = {
-            "univariate": "treats every variable as independent",
-            "hillclimb": "does not fit a probability model",
-            "random": "draws candidates uniformly at random",
-        }.get(data.method, "learns no dependency tree")
         links_reason = (
-            f"This run's method ({data.method}) {what}, so no dependency tree was learned and there "
-            f"are no links to report."
+            f"This run's method ({data.method}) {without_tree or 'learns no dependency tree'}, so no "
+            f"dependency tree was learned and there are no links to report."
         )
     if data.method == "hillclimb":
         cautions.append(

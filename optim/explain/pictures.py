@@ -22,6 +22,7 @@ import numpy as np
 from optim.errors import RunFolderError
 from optim.explain.findings import Explanation
 from optim.files import atomic_write
+from optim.methods import learns_model
 
 __all__ = ["MAX_LABELLED", "PICTURES", "pictures_unavailable", "write_pictures"]
 
@@ -341,7 +342,7 @@ def _draw_convergence(plt, explanation: Explanation, path: Path) -> Optional[Pat
     best = np.array([np.nan if r.get("best") is None else r["best"] for r in log], dtype=float)
     mean = np.array([np.nan if r.get("mean") is None else r["mean"] for r in log], dtype=float)
     entropy = np.array([np.nan if r.get("model_entropy") is None else r["model_entropy"] for r in log], dtype=float)
-    with_model = explanation.data.method in ("tree", "forest", "univariate") and np.isfinite(entropy).any()
+    with_model = learns_model(explanation.data.method) and np.isfinite(entropy).any()
     figure, axes = plt.subplots(
         2 if with_model else 1, 1, figsize=(8, 6.5 if with_model else 4), sharex=True, squeeze=False
     )

@@ -12,6 +12,7 @@ import numpy as np
 from optim.explain.findings import FEW_CANDIDATES, Explanation, PairFinding, VariableFinding, pair_sentence
 from optim.explain.links import LinkFinding
 from optim.files import atomic_write
+from optim.methods import learns_model
 
 __all__ = ["FORMAT", "MARKDOWN", "JSON", "render_markdown", "to_document", "short_lines", "write_reports"]
 
@@ -337,7 +338,7 @@ def _links_section(explanation: Explanation) -> List[str]:
 def _entropy_section(explanation: Explanation) -> List[str]:
     lines = ["## How the model sharpened", ""]
     trace = explanation.entropy
-    if not trace or explanation.data.method not in ("tree", "forest", "univariate"):
+    if not trace or not learns_model(explanation.data.method):
         return lines + [
             f"This run's method ({explanation.data.method}) fits no probability model, so there is "
             f"no model entropy to follow.",
@@ -551,7 +552,7 @@ def short_lines(explanation: Explanation) -> List[str]:
         lines.append(f"interactions: no pair stands out among the {explanation.pairs_tested:,} compared")
     else:
         lines.append(f"interactions: {explanation.pairs_reason}")
-    if explanation.entropy and data.method in ("tree", "forest", "univariate"):
+    if explanation.entropy and learns_model(data.method):
         first, last = explanation.entropy[0], explanation.entropy[-1]
         linked = f"; {len(explanation.links)} pairs linked at some generation" if data.trees else ""
         lines.append(f"model entropy: {_num(first['entropy'])} -> {_num(last['entropy'])} nats{linked}")

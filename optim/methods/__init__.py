@@ -16,6 +16,7 @@ __all__ = [
     "PopulationLadder",
     "RandomSearch",
     "METHODS",
+    "learns_model",
     "AUTO",
     "AUTO_STEP",
     "make_method",
@@ -24,6 +25,15 @@ __all__ = [
 
 #: The method names a run config accepts.
 METHODS = ("tree", "forest", "univariate", "hillclimb", "random")
+
+#: The methods that sample their candidates from a probability model fitted to the survivors.
+_MODEL_METHODS = frozenset({"tree", "forest", "univariate"})
+
+
+def learns_model(name: str) -> bool:
+    """Whether the method called ``name`` samples its candidates from a fitted probability model."""
+    return name in _MODEL_METHODS
+
 
 #: The ``population`` value that asks for no fixed population: the model-based methods run a
 #: :class:`PopulationLadder`; the hill climber and random search log every :data:`AUTO_STEP` evaluations.
