@@ -13,6 +13,7 @@ from optim.explain.findings import FEW_CANDIDATES, Explanation, PairFinding, Var
 from optim.explain.links import LinkFinding
 from optim.files import atomic_write
 from optim.methods import learns_model
+from optim.text import markdown_table
 
 __all__ = ["FORMAT", "MARKDOWN", "JSON", "render_markdown", "to_document", "short_lines", "write_reports"]
 
@@ -135,13 +136,6 @@ def _plain_setting(explanation: Explanation, variable: VariableFinding) -> str:
 
 
 # -- markdown -----------------------------------------------------------------------------------
-def _table(header: List[str], rows: List[List[str]]) -> List[str]:
-    def line(cells):
-        return "| " + " | ".join(str(c).replace("|", "\\|") for c in cells) + " |"
-
-    return [line(header), line(["---"] * len(header))] + [line(r) for r in rows]
-
-
 def _glossary(explanation: Explanation) -> List[str]:
     better = _better(explanation)
     return [
@@ -215,7 +209,7 @@ def _variables_section(explanation: Explanation) -> List[str]:
                 _variable_note(v),
             ]
         )
-    lines += _table(
+    lines += markdown_table(
         [
             "#",
             "setting",
@@ -281,7 +275,9 @@ def _pairs_section(explanation: Explanation) -> List[str]:
                 note,
             ]
         )
-    lines += _table(["#", "in words", "interaction [95%]", "cells vs neither", "linked by the model", "note"], rows)
+    lines += markdown_table(
+        ["#", "in words", "interaction [95%]", "cells vs neither", "linked by the model", "note"], rows
+    )
     return lines + [""]
 
 
@@ -317,7 +313,7 @@ def _links_section(explanation: Explanation) -> List[str]:
         ]
         for rank, link in enumerate(shown, 1)
     ]
-    lines += _table(
+    lines += markdown_table(
         [
             "#",
             "pair",
@@ -367,7 +363,7 @@ def _entropy_section(explanation: Explanation) -> List[str]:
         ]
         for k in picks
     ]
-    lines += _table(["generation", "evaluations", "best so far", "generation mean", "entropy (nats)"], rows)
+    lines += markdown_table(["generation", "evaluations", "best so far", "generation mean", "entropy (nats)"], rows)
     return lines + [""]
 
 
