@@ -36,7 +36,8 @@ import numpy as np
 
 from optim.runs.config import read_yaml
 from optim.errors import OptimError, RunFolderError
-from optim.sweeps.plots import PLOT_EXTRA_HINT, convergence_plot, ecdf_plot, plots_available
+from optim.plotting import PLOT_EXTRA_HINT, plots_available
+from optim.sweeps.plots import convergence_plot, ecdf_plot
 from optim.files import atomic_write
 from optim.text import markdown_table
 from optim.sweeps.running import SweepStore
