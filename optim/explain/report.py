@@ -9,6 +9,7 @@ from typing import Dict, List, Mapping, Optional
 
 import numpy as np
 
+from optim.explain.effects import CONFIDENCE_Z
 from optim.explain.findings import FEW_CANDIDATES, Explanation, PairFinding, VariableFinding, pair_sentence
 from optim.explain.links import LinkFinding
 from optim.files import atomic_write
@@ -20,8 +21,6 @@ __all__ = ["FORMAT", "MARKDOWN", "JSON", "render_markdown", "to_document", "shor
 #: Identifies the layout of ``explain.json``.
 FORMAT = "optim-explain-1"
 MARKDOWN, JSON = "explain.md", "explain.json"
-
-_Z = 1.959963984540054
 
 
 # -- numbers ------------------------------------------------------------------------------------
@@ -121,7 +120,7 @@ def _headline(explanation: Explanation) -> List[str]:
     if clear:
         lines.append(
             f"The strongest interaction: {_sentence(explanation, clear[0])} "
-            f"(interaction {_num(clear[0].contrast, signed=True)} ± {_num(_Z * clear[0].se, 2)})."
+            f"(interaction {_num(clear[0].contrast, signed=True)} ± {_num(CONFIDENCE_Z * clear[0].se, 2)})."
         )
     elif explanation.pairs_available:
         lines.append("No pair of settings shows a clear interaction.")
@@ -202,7 +201,7 @@ def _variables_section(explanation: Explanation) -> List[str]:
                 f"{_num(v.effect, signed=True)} [{_num(lo, signed=True)}, {_num(hi, signed=True)}]"
                 if np.isfinite(v.effect)
                 else "n/a",
-                f"{_num(v.adjusted, signed=True)} ± {_num(_Z * v.adjusted_se, 2)}"
+                f"{_num(v.adjusted, signed=True)} ± {_num(CONFIDENCE_Z * v.adjusted_se, 2)}"
                 if np.isfinite(v.adjusted)
                 else "n/a",
                 _verdict(v),
@@ -258,7 +257,7 @@ def _pairs_section(explanation: Explanation) -> List[str]:
         if largest is not None:
             text += (
                 f" (the largest: `{largest.names[0]}` and `{largest.names[1]}`, "
-                f"{_num(largest.contrast, signed=True)} ± {_num(_Z * largest.se, 2)})"
+                f"{_num(largest.contrast, signed=True)} ± {_num(CONFIDENCE_Z * largest.se, 2)})"
             )
         return lines + [text + ". The settings seem to act independently of each other.", ""]
     rows = []
@@ -532,7 +531,9 @@ def short_lines(explanation: Explanation) -> List[str]:
     ]
     width = max((len(v.name) for v in explanation.variables[:top]), default=0)
     for rank, v in enumerate(explanation.variables[:top], 1):
-        effect = f"{_num(v.effect, signed=True)} ± {_num(_Z * v.effect_se, 2)}" if np.isfinite(v.effect) else "n/a"
+        effect = (
+            f"{_num(v.effect, signed=True)} ± {_num(CONFIDENCE_Z * v.effect_se, 2)}" if np.isfinite(v.effect) else "n/a"
+        )
         lines.append(
             f"  {rank:>3}. {v.name:<{width}} = {v.favoured}  {_percent(v.frequency):>6} "
             f"[{_percent(v.interval[0])}, {_percent(v.interval[1])}]  {effect}  {_verdict(v)}"
@@ -542,7 +543,7 @@ def short_lines(explanation: Explanation) -> List[str]:
         for rank, pair in enumerate(explanation.clear_pairs[:top], 1):
             lines.append(
                 f"  {rank:>3}. {_sentence(explanation, pair, code=False)}  "
-                f"{_num(pair.contrast, signed=True)} ± {_num(_Z * pair.se, 2)}"
+                f"{_num(pair.contrast, signed=True)} ± {_num(CONFIDENCE_Z * pair.se, 2)}"
             )
     elif explanation.pairs_available:
         lines.append(f"interactions: no pair stands out among the {explanation.pairs_tested:,} compared")
