@@ -40,6 +40,7 @@ class RunData:
 
     @property
     def folder(self) -> RunFolder:
+        """The run folder, for the records read only when needed (the last tree, for the pictures)."""
         return RunFolder(self.path)
 
 
