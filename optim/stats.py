@@ -53,9 +53,20 @@ def chi2_sf(x, df) -> np.ndarray:
 def g_test_p_value(mutual_information_nats, total, df) -> np.ndarray:
     """P-value of the G-test of independence, G = 2·N·I (I in nats), against χ²_df.
 
+    Parameters
+    ----------
+    mutual_information_nats : array_like
+        The empirical mutual information of each tested pair; a negative value (a rounding
+        error) counts as 0.
+    total : array_like
+        N, the sample size: one for all tests or one per test.
+    df : array_like of int
+        Degrees of freedom, ``(k_i − 1)(k_j − 1)``; all three arguments are broadcast together.
+
     References
     ----------
     R. R. Sokal and F. J. Rohlf, *Biometry*, 1981 (the G-test of independence).
     """
-    g = 2.0 * float(total) * np.asarray(mutual_information_nats, dtype=np.float64)
+    information = np.maximum(np.asarray(mutual_information_nats, dtype=np.float64), 0.0)
+    g = 2.0 * np.asarray(total, dtype=np.float64) * information
     return chi2_sf(g, df)

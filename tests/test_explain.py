@@ -12,21 +12,18 @@ import scipy.linalg
 import scipy.stats
 
 from optim.cli import main
-from optim.explain.findings import (
+from optim.explain import explain_run, run_summary
+from optim.explain.effects import (
     adjusted_effects,
     best_candidates,
     classify_pair,
-    explain_run,
     favoured_values,
-    fitted_sizes,
     interaction_contrasts,
     main_effects,
-    pair_p_value,
-    run_summary,
     wilson_interval,
 )
-from optim.info import mutual_information
-from optim.runs.folder import RunFolder, read_jsonl
+from optim.files import read_jsonl
+from optim.runs.folder import RunFolder
 from optim_problems.service_demo import PLANTED, service_latency
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -85,29 +82,6 @@ def test_wilson_interval_matches_scipy_and_a_published_table():
         assert float(got[0]) == pytest.approx(lo, abs=5e-5) and float(got[1]) == pytest.approx(hi, abs=5e-5)
     with pytest.raises(ValueError):
         wilson_interval(3, 2)
-
-
-@pytest.mark.parametrize(
-    "table",
-    [[[30, 10], [12, 28]], [[5, 45], [40, 10]], [[20, 21], [19, 20]], [[3, 0], [1, 9]], [[12, 7, 30], [25, 14, 2]]],
-)
-def test_g_test_p_value_matches_scipy_chi2_contingency(table):
-    table = np.array(table, dtype=float)
-    joint = table / table.sum()
-    outer = joint.sum(axis=1, keepdims=True) * joint.sum(axis=0, keepdims=True)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        information = float(np.where(joint > 0, joint * np.log(joint / outer), 0.0).sum())  # nats
-    df = (table.shape[0] - 1) * (table.shape[1] - 1)
-    ours = float(pair_p_value(information, table.sum(), df))
-    # reference: scipy's G-test of independence on the same table
-    g, p, dof, _ = scipy.stats.chi2_contingency(table, correction=False, lambda_="log-likelihood")
-    assert dof == df and 2 * table.sum() * information == pytest.approx(g, rel=1e-9)
-    assert ours == pytest.approx(p, rel=1e-7, abs=1e-300)
-    if df == 1:  # the mutual information optim.info computes from the rows gives the same p-value
-        rows, cols = np.indices(table.shape)
-        X = np.repeat(np.stack([rows.ravel(), cols.ravel()], axis=1), table.astype(int).ravel(), axis=0)
-        estimated = mutual_information(X.astype(np.uint8), cardinality=2, prior=0.0)[0, 1]
-        assert float(pair_p_value(estimated, table.sum(), 1)) == pytest.approx(p, abs=5e-3)
 
 
 # -- the counting trick against direct computation ----------------------------------------------
@@ -225,17 +199,13 @@ def test_a_published_two_level_factorial():
     assert (c.contrast[0, 1] / 2, c.contrast[0, 2] / 2, c.contrast[1, 2] / 2) == pytest.approx((1.5, 10, 0))
 
 
-def test_best_candidates_favoured_values_and_fitted_sizes():
+def test_best_candidates_and_favoured_values():
     scores = np.array([5.0, 1.0, 3.0, 1.0, 9.0])
     assert best_candidates(scores, "minimize", 0.4, 2).tolist() == [1, 3]
     assert best_candidates(scores, "maximize", 0.1, 3).tolist() == [4, 0, 2]
     X = np.array([[0, 2], [1, 2], [1, 0], [0, 1]], dtype=np.uint8)
     values, counts = favoured_values(X, np.array([2, 3]))
     assert values.tolist() == [0, 2] and counts.tolist() == [2, 2]  # a tie goes to the smaller value
-    # pools of 10, then 5 + 5 (elitism) or 5: ceil(0.5 · pool) survivors, at least two
-    assert fitted_sizes([10, 5, 5], 0.5, True) == {1: 5, 2: 5}
-    assert fitted_sizes([10, 5, 3], 0.5, False) == {1: 5, 2: 3}
-    assert fitted_sizes([3, 1], 0.1, True) == {1: 2}
 
 
 @pytest.mark.parametrize(
@@ -301,11 +271,21 @@ def test_important_toggles_lead_and_inert_toggles_trail_the_main_effects(demo):
         assert v.favoured == problem.optimal_settings[v.index] and v.interval[0] > 0.9 and v.helps
 
 
-def test_recorded_fit_sizes_match_the_replayed_selection(demo_run, demo):
-    records = read_jsonl(demo_run / RunFolder.TREES)
-    replayed = fitted_sizes(np.bincount(demo.data.generation), 0.5, True)
-    recorded = {r["generation"]: r["fitted_on"] for r in records if "fitted_on" in r}
-    assert recorded and recorded == {g: replayed[g] for g in recorded}
+def test_links_report_the_fit_sizes_an_auto_run_recorded(tmp_path_factory):
+    folder = _run(tmp_path_factory, "auto", "search.population=auto", "stop.evaluations=12000", "seed=5")
+    populations = [record["population"] for record in RunFolder(folder).read_log()]
+    assert len(set(populations)) >= 3  # the ladder restarted with larger populations
+    recorded = {r["generation"]: r["fitted_on"] for r in read_jsonl(folder / RunFolder.TREES)}
+    # every tree was fitted on the survivors of its run's pool: half of that run's population (select 0.5)
+    assert recorded and all(size == populations[g] // 2 for g, size in recorded.items())
+    explanation = explain_run(folder)
+    assert len({link.fitted_on for link in explanation.links}) >= 2  # links from runs of different sizes
+    for link in explanation.links:
+        assert link.fitted_on == recorded[link.generation]
+        assert link.g == pytest.approx(2 * recorded[link.generation] * link.peak_information)
+
+
+def test_link_p_values_follow_the_chi_squared_tail(demo):
     link = demo.links[0]  # reference for the χ² tail: scipy.stats.chi2.sf
     assert link.p_value == pytest.approx(
         scipy.stats.chi2.sf(2 * link.fitted_on * link.peak_information, link.df), rel=1e-6, abs=1e-300

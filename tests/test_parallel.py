@@ -26,7 +26,8 @@ from optim.cli import main as optim_main
 from optim.runs.config import load_run_config
 from optim.errors import ConfigError
 from optim.evaluation import Evaluator, candidate_text
-from optim.runs.folder import RunFolder, read_jsonl
+from optim.files import read_jsonl
+from optim.runs.folder import RunFolder
 from optim.runs.runner import execute, resume
 from optim.evaluation import ClusterUnavailable, WorkerError
 from optim.evaluation.shipping import worker_status

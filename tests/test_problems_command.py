@@ -375,7 +375,6 @@ def test_the_factory_documents_every_parameter_and_the_caution():
 
 def test_a_config_run_records_failures_and_goes_on(tmp_path):
     from optim.runs.config import load_run_config
-    from optim.runs.folder import read_jsonl
     from optim.runs.runner import execute
 
     executable_tool(tmp_path)
@@ -404,7 +403,7 @@ def test_a_config_run_records_failures_and_goes_on(tmp_path):
     outcome = execute(load_run_config(path))
     assert outcome.result.best_score == 7 and outcome.result.stop_reason == "target"
     assert outcome.result.best_solution.tolist() == [1, 1, 1, 0]
-    failures = read_jsonl(outcome.folder.path / "failures.jsonl")
+    failures = outcome.folder.read_failures()
     assert failures and all(f["kind"] == "exit" and f["candidate"].endswith("1") for f in failures)
     assert all("status 4" in f["message"] for f in failures)
     candidates, scores, _ = outcome.folder.read_evaluated()

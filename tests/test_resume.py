@@ -10,7 +10,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from optim.runs.folder import RunFolder, read_jsonl
+from optim.files import read_jsonl
+from optim.runs.folder import RunFolder
 
 ROOT = Path(__file__).resolve().parents[1]
 DATA = Path(__file__).resolve().parent / "data" / "resume"

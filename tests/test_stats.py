@@ -11,6 +11,7 @@ import pytest
 import scipy.special
 import scipy.stats
 
+from optim.info import mutual_information
 from optim.stats import chi2_sf, g_test_p_value
 
 
@@ -118,6 +119,37 @@ def test_g_test_p_value_matches_scipy_log_likelihood_test():
         assert dof == df
         assert 2.0 * total * information == pytest.approx(statistic, rel=1e-12)
         assert g_test_p_value(information, total, df) == pytest.approx(p_value, rel=1e-10, abs=1e-14)
+
+
+@pytest.mark.parametrize("table", [[[3, 0], [1, 9]], [[12, 7, 30], [25, 14, 0]], [[20, 21], [19, 20]]])
+def test_g_test_p_value_on_tables_with_empty_or_balanced_cells(table):
+    # Reference: scipy.stats.chi2_contingency with lambda_="log-likelihood" and no continuity
+    # correction; empty cells add nothing to the mutual information.
+    table = np.array(table, dtype=np.float64)
+    joint = table / table.sum()
+    product = joint.sum(axis=1, keepdims=True) * joint.sum(axis=0, keepdims=True)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        information = float(np.where(joint > 0, joint * np.log(joint / product), 0.0).sum())
+    df = (table.shape[0] - 1) * (table.shape[1] - 1)
+    _, p_value, dof, _ = scipy.stats.chi2_contingency(table, correction=False, lambda_="log-likelihood")
+    assert dof == df
+    assert g_test_p_value(information, table.sum(), df) == pytest.approx(p_value, rel=1e-7, abs=1e-300)
+    if df == 1:  # the mutual information optim.info estimates from the rows gives the same p-value
+        rows, cols = np.indices(table.shape)
+        X = np.repeat(np.stack([rows.ravel(), cols.ravel()], axis=1), table.astype(int).ravel(), axis=0)
+        estimated = mutual_information(X.astype(np.uint8), cardinality=2, prior=0.0)[0, 1]
+        assert float(g_test_p_value(estimated, table.sum(), 1)) == pytest.approx(p_value, abs=5e-3)
+
+
+def test_g_test_p_value_takes_one_sample_size_per_test_and_clips_negative_information():
+    # Reference: scipy.stats.chi2.sf of G = 2 N I per test, with I = 0 where it is below zero.
+    information = np.array([0.02, -1e-12, 0.003, 0.1])
+    sizes = np.array([16, 64, 512, 1024])
+    df = np.array([1, 1, 2, 4])
+    result = g_test_p_value(information, sizes, df)
+    assert result[1] == 1.0
+    expected = scipy.stats.chi2.sf(2.0 * sizes * np.maximum(information, 0.0), df)
+    assert np.allclose(result, expected, rtol=1e-10, atol=1e-14)
 
 
 def test_g_test_p_value_vectorises_over_edges():

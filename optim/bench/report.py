@@ -5,6 +5,8 @@ from __future__ import annotations
 import math
 from typing import List, Optional, Sequence
 
+from optim.text import markdown_table
+
 __all__ = ["TARGETS", "check_targets", "format_text", "format_markdown", "describe_blas"]
 
 #: The limits every benchmark run is checked against.
@@ -385,8 +387,7 @@ def format_markdown(report: dict) -> str:
     """The tables as Markdown (for the documentation)."""
     blocks = []
     for title, header, rows, note in _tables(report):
-        lines = [f"**{title}**", "", "| " + " | ".join(header) + " |", "|" + "---|" * len(header)]
-        lines += ["| " + " | ".join(str(c).replace("|", "\\|") for c in row) + " |" for row in rows]
+        lines = [f"**{title}**", ""] + markdown_table(header, rows, compact_rule=True)
         if note:
             lines += ["", f"_{note}_"]
         blocks.append("\n".join(lines))

@@ -178,7 +178,7 @@ def run_bench(config: BenchConfig = FULL, log: Optional[Callable[[str], None]] =
 def write_bench(report: dict, out) -> Path:
     """Write ``bench.json`` and ``bench.md`` into the folder ``out`` (made if needed); returns the JSON path."""
     from optim.bench.report import format_markdown
-    from optim.runs.folder import atomic_write, to_json
+    from optim.files import atomic_write, to_json
 
     folder = Path(out)
     folder.mkdir(parents=True, exist_ok=True)

@@ -91,7 +91,7 @@ def print_run_summary(outcome) -> None:
         print(f"failures     {result.failures} (see failures.jsonl)")
     print(f"run folder   {outcome.folder.path}")
     from optim.errors import OptimError
-    from optim.explain.findings import run_summary
+    from optim.explain import run_summary
 
     try:
         lines = run_summary(outcome.folder.path)

@@ -19,9 +19,7 @@ def _positive(text: str) -> int:
 
 
 def _cmd_explain(args) -> int:
-    from optim.explain.findings import explain_run
-    from optim.explain.pictures import write_pictures
-    from optim.explain.report import short_lines, to_document, write_reports
+    from optim.explain import explain_run, short_lines, to_document, write_pictures, write_reports
 
     explanation = explain_run(args.run_dir, top=args.top)
     if args.no_pictures:

@@ -1,8 +1,8 @@
 """Pictures for ``optim explain``: the learned tree, the pairwise interactions, convergence.
 
 matplotlib is optional (``pip install matplotlib``); without it
-:func:`write_pictures` writes nothing and says why. The Agg backend is chosen
-before pyplot is first imported, so no display is needed. Up to
+:func:`write_pictures` writes nothing and says why. It is set up by
+:mod:`optim.plotting` (Agg backend, no display needed). Up to
 :data:`MAX_LABELLED` variables every one is labelled; above that the pictures
 show a summary: the strongest links of the tree, and the most important
 variables in the heat maps.
@@ -10,17 +10,16 @@ variables in the heat maps.
 
 from __future__ import annotations
 
-import importlib.util
-import io
 import math
-import sys
 from pathlib import Path
 from typing import Dict, List, Optional, Tuple
 
 import numpy as np
 
+from optim.errors import RunFolderError
 from optim.explain.findings import Explanation
-from optim.runs.folder import atomic_write
+from optim.methods import learns_model
+from optim.plotting import plots_available, pyplot, save_png
 
 __all__ = ["MAX_LABELLED", "PICTURES", "pictures_unavailable", "write_pictures"]
 
@@ -32,29 +31,9 @@ PICTURES = ("tree.png", "interactions.png", "convergence.png")
 
 def pictures_unavailable() -> Optional[str]:
     """Why no pictures can be drawn (matplotlib missing), or ``None`` when they can."""
-    if importlib.util.find_spec("matplotlib") is None:
+    if not plots_available():
         return "Pictures skipped: matplotlib is not installed (pip install matplotlib, or the 'plot' extra)."
     return None
-
-
-def _pyplot():
-    import matplotlib
-
-    if "matplotlib.pyplot" not in sys.modules:
-        matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    return plt
-
-
-def _save(plt, figure, path: Path) -> Path:
-    buffer = io.BytesIO()
-    try:
-        figure.savefig(buffer, format="png", dpi=110, bbox_inches="tight")
-    finally:
-        plt.close(figure)
-    atomic_write(path, buffer.getvalue())
-    return path
 
 
 # -- the tree -----------------------------------------------------------------------------------
@@ -63,11 +42,12 @@ def _read_tree(explanation: Explanation):
     import networkx as nx
 
     data = explanation.data
-    if data.tree_file is not None:
-        try:
-            return nx.read_graphml(data.tree_file, node_type=int)
-        except Exception:  # a damaged file falls back on trees.jsonl
-            pass
+    try:
+        graph = data.folder.read_tree()
+    except RunFolderError:  # a damaged file falls back on trees.jsonl
+        graph = None
+    if graph is not None:
+        return graph
     if not data.trees:
         return None
     graph = nx.Graph()
@@ -247,7 +227,7 @@ def _draw_tree(plt, explanation: Explanation, path: Path) -> Optional[Path]:
     for ax, (graph, title) in zip(axes[0], panels, strict=True):
         _draw_one_tree(plt, ax, graph, explanation, title)
     figure.suptitle("Node colour: the favoured value (faint: the best candidates disagree)", fontsize=9)
-    return _save(plt, figure, path)
+    return save_png(figure, path, dpi=110, bbox_inches="tight")
 
 
 # -- the heat maps ------------------------------------------------------------------------------
@@ -327,7 +307,7 @@ def _draw_interactions(plt, explanation: Explanation, path: Path) -> Optional[Pa
         subtitle += f"; the {len(shown)} most important of {len(explanation.names)}"
     figure.suptitle(subtitle, fontsize=9)
     figure.tight_layout()
-    return _save(plt, figure, path)
+    return save_png(figure, path, dpi=110, bbox_inches="tight")
 
 
 # -- convergence --------------------------------------------------------------------------------
@@ -339,7 +319,7 @@ def _draw_convergence(plt, explanation: Explanation, path: Path) -> Optional[Pat
     best = np.array([np.nan if r.get("best") is None else r["best"] for r in log], dtype=float)
     mean = np.array([np.nan if r.get("mean") is None else r["mean"] for r in log], dtype=float)
     entropy = np.array([np.nan if r.get("model_entropy") is None else r["model_entropy"] for r in log], dtype=float)
-    with_model = explanation.data.method in ("tree", "forest", "univariate") and np.isfinite(entropy).any()
+    with_model = learns_model(explanation.data.method) and np.isfinite(entropy).any()
     figure, axes = plt.subplots(
         2 if with_model else 1, 1, figsize=(8, 6.5 if with_model else 4), sharex=True, squeeze=False
     )
@@ -359,7 +339,7 @@ def _draw_convergence(plt, explanation: Explanation, path: Path) -> Optional[Pat
         bottom.grid(alpha=0.3)
     axes[-1][0].set_xlabel("evaluations")
     figure.tight_layout()
-    return _save(plt, figure, path)
+    return save_png(figure, path, dpi=110, bbox_inches="tight")
 
 
 def write_pictures(explanation: Explanation, folder=None) -> Tuple[Dict[str, Path], Optional[str]]:
@@ -371,7 +351,7 @@ def write_pictures(explanation: Explanation, folder=None) -> Tuple[Dict[str, Pat
     if reason is not None:
         return {}, reason
     folder = Path(folder) if folder is not None else explanation.data.path
-    plt = _pyplot()
+    plt = pyplot()
     written: Dict[str, Path] = {}
     skipped = []
     drawers = {

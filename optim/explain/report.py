@@ -9,16 +9,18 @@ from typing import Dict, List, Mapping, Optional
 
 import numpy as np
 
-from optim.explain.findings import FEW_CANDIDATES, Explanation, LinkFinding, PairFinding, VariableFinding, pair_sentence
-from optim.runs.folder import atomic_write
+from optim.explain.effects import CONFIDENCE_Z
+from optim.explain.findings import FEW_CANDIDATES, Explanation, PairFinding, VariableFinding, pair_sentence
+from optim.explain.links import LinkFinding
+from optim.files import atomic_write
+from optim.methods import learns_model
+from optim.text import markdown_table
 
 __all__ = ["FORMAT", "MARKDOWN", "JSON", "render_markdown", "to_document", "short_lines", "write_reports"]
 
 #: Identifies the layout of ``explain.json``.
 FORMAT = "optim-explain-1"
 MARKDOWN, JSON = "explain.md", "explain.json"
-
-_Z = 1.959963984540054
 
 
 # -- numbers ------------------------------------------------------------------------------------
@@ -118,7 +120,7 @@ def _headline(explanation: Explanation) -> List[str]:
     if clear:
         lines.append(
             f"The strongest interaction: {_sentence(explanation, clear[0])} "
-            f"(interaction {_num(clear[0].contrast, signed=True)} ± {_num(_Z * clear[0].se, 2)})."
+            f"(interaction {_num(clear[0].contrast, signed=True)} ± {_num(CONFIDENCE_Z * clear[0].se, 2)})."
         )
     elif explanation.pairs_available:
         lines.append("No pair of settings shows a clear interaction.")
@@ -133,13 +135,6 @@ def _plain_setting(explanation: Explanation, variable: VariableFinding) -> str:
 
 
 # -- markdown -----------------------------------------------------------------------------------
-def _table(header: List[str], rows: List[List[str]]) -> List[str]:
-    def line(cells):
-        return "| " + " | ".join(str(c).replace("|", "\\|") for c in cells) + " |"
-
-    return [line(header), line(["---"] * len(header))] + [line(r) for r in rows]
-
-
 def _glossary(explanation: Explanation) -> List[str]:
     better = _better(explanation)
     return [
@@ -206,14 +201,14 @@ def _variables_section(explanation: Explanation) -> List[str]:
                 f"{_num(v.effect, signed=True)} [{_num(lo, signed=True)}, {_num(hi, signed=True)}]"
                 if np.isfinite(v.effect)
                 else "n/a",
-                f"{_num(v.adjusted, signed=True)} ± {_num(_Z * v.adjusted_se, 2)}"
+                f"{_num(v.adjusted, signed=True)} ± {_num(CONFIDENCE_Z * v.adjusted_se, 2)}"
                 if np.isfinite(v.adjusted)
                 else "n/a",
                 _verdict(v),
                 _variable_note(v),
             ]
         )
-    lines += _table(
+    lines += markdown_table(
         [
             "#",
             "setting",
@@ -262,7 +257,7 @@ def _pairs_section(explanation: Explanation) -> List[str]:
         if largest is not None:
             text += (
                 f" (the largest: `{largest.names[0]}` and `{largest.names[1]}`, "
-                f"{_num(largest.contrast, signed=True)} ± {_num(_Z * largest.se, 2)})"
+                f"{_num(largest.contrast, signed=True)} ± {_num(CONFIDENCE_Z * largest.se, 2)})"
             )
         return lines + [text + ". The settings seem to act independently of each other.", ""]
     rows = []
@@ -279,7 +274,9 @@ def _pairs_section(explanation: Explanation) -> List[str]:
                 note,
             ]
         )
-    lines += _table(["#", "in words", "interaction [95%]", "cells vs neither", "linked by the model", "note"], rows)
+    lines += markdown_table(
+        ["#", "in words", "interaction [95%]", "cells vs neither", "linked by the model", "note"], rows
+    )
     return lines + [""]
 
 
@@ -315,7 +312,7 @@ def _links_section(explanation: Explanation) -> List[str]:
         ]
         for rank, link in enumerate(shown, 1)
     ]
-    lines += _table(
+    lines += markdown_table(
         [
             "#",
             "pair",
@@ -336,7 +333,7 @@ def _links_section(explanation: Explanation) -> List[str]:
 def _entropy_section(explanation: Explanation) -> List[str]:
     lines = ["## How the model sharpened", ""]
     trace = explanation.entropy
-    if not trace or explanation.data.method not in ("tree", "forest", "univariate"):
+    if not trace or not learns_model(explanation.data.method):
         return lines + [
             f"This run's method ({explanation.data.method}) fits no probability model, so there is "
             f"no model entropy to follow.",
@@ -365,7 +362,7 @@ def _entropy_section(explanation: Explanation) -> List[str]:
         ]
         for k in picks
     ]
-    lines += _table(["generation", "evaluations", "best so far", "generation mean", "entropy (nats)"], rows)
+    lines += markdown_table(["generation", "evaluations", "best so far", "generation mean", "entropy (nats)"], rows)
     return lines + [""]
 
 
@@ -534,7 +531,9 @@ def short_lines(explanation: Explanation) -> List[str]:
     ]
     width = max((len(v.name) for v in explanation.variables[:top]), default=0)
     for rank, v in enumerate(explanation.variables[:top], 1):
-        effect = f"{_num(v.effect, signed=True)} ± {_num(_Z * v.effect_se, 2)}" if np.isfinite(v.effect) else "n/a"
+        effect = (
+            f"{_num(v.effect, signed=True)} ± {_num(CONFIDENCE_Z * v.effect_se, 2)}" if np.isfinite(v.effect) else "n/a"
+        )
         lines.append(
             f"  {rank:>3}. {v.name:<{width}} = {v.favoured}  {_percent(v.frequency):>6} "
             f"[{_percent(v.interval[0])}, {_percent(v.interval[1])}]  {effect}  {_verdict(v)}"
@@ -544,13 +543,13 @@ def short_lines(explanation: Explanation) -> List[str]:
         for rank, pair in enumerate(explanation.clear_pairs[:top], 1):
             lines.append(
                 f"  {rank:>3}. {_sentence(explanation, pair, code=False)}  "
-                f"{_num(pair.contrast, signed=True)} ± {_num(_Z * pair.se, 2)}"
+                f"{_num(pair.contrast, signed=True)} ± {_num(CONFIDENCE_Z * pair.se, 2)}"
             )
     elif explanation.pairs_available:
         lines.append(f"interactions: no pair stands out among the {explanation.pairs_tested:,} compared")
     else:
         lines.append(f"interactions: {explanation.pairs_reason}")
-    if explanation.entropy and data.method in ("tree", "forest", "univariate"):
+    if explanation.entropy and learns_model(data.method):
         first, last = explanation.entropy[0], explanation.entropy[-1]
         linked = f"; {len(explanation.links)} pairs linked at some generation" if data.trees else ""
         lines.append(f"model entropy: {_num(first['entropy'])} -> {_num(last['entropy'])} nats{linked}")

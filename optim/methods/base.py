@@ -70,6 +70,15 @@ class Method(abc.ABC):
         """The current probability model, if any."""
         return None
 
+    @property
+    def fitted_on(self) -> Optional[int]:
+        """How many candidates (the survivors of the last selection) the current model was fitted on.
+
+        ``None`` for methods without a model, before the first fit, and after a restore from a
+        checkpoint until the next fit (the count is not part of the saved state).
+        """
+        return None
+
     @abc.abstractmethod
     def get_state(self) -> dict:
         """All state as numpy arrays and plain numbers (the random generator excluded)."""

@@ -85,6 +85,7 @@ class DistributionSearch(Method):
         self._model = make_model(model, problem.cardinality, prior=prior, **options)
         self.pool: Optional[np.ndarray] = None
         self._selection = (None, None)  # (the pool_fitness array it was made for, its survivors)
+        self._fitted_on: Optional[int] = None
         self.pool_fitness: Optional[np.ndarray] = None
         self._converged = False
 
@@ -97,6 +98,7 @@ class DistributionSearch(Method):
         survivors, survivor_fitness = self.pool[kept], self.pool_fitness[kept]
         self._converged = bool(np.all(survivors == survivors[:1]))
         self._model.fit(survivors)
+        self._fitted_on = int(survivors.shape[0])
         seconds["fit"] = time.perf_counter() - start
         wanted = self.population - kept.shape[0] if self.elitism else self.population
         count = max(1, min(wanted, budget))
@@ -146,6 +148,10 @@ class DistributionSearch(Method):
     def model(self):
         return self._model if self._model.fitted else None
 
+    @property
+    def fitted_on(self):
+        return self._fitted_on
+
     def get_state(self):
         state = {"converged": self._converged}
         if self.pool is not None:
@@ -157,6 +163,7 @@ class DistributionSearch(Method):
 
     def set_state(self, state):
         self._converged = bool(state.get("converged", False))
+        self._fitted_on = None
         if "pool" in state:
             self.pool = np.asarray(state["pool"], dtype=np.uint8)
             self.pool_fitness = np.asarray(state["pool_fitness"], dtype=np.float64)

@@ -203,6 +203,10 @@ class PopulationLadder(Method):
     def model(self):
         return None if self.run is None else self.run.model()
 
+    @property
+    def fitted_on(self):
+        return None if self.run is None else self.run.fitted_on
+
     def get_state(self):
         state = {
             "smallest": self.smallest,

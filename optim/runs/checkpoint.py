@@ -16,7 +16,7 @@ from typing import Any, Dict, Tuple
 import numpy as np
 
 from optim.errors import RunFolderError
-from optim.runs.folder import atomic_write
+from optim.files import atomic_write
 
 __all__ = ["FORMAT", "save_checkpoint", "load_checkpoint", "flatten_state", "unflatten_state"]
 

@@ -135,7 +135,9 @@ def _refuse_repeated_keys(node, path: Tuple[str, ...], source: str) -> None:
                 key, line = str(key_node.value), key_node.start_mark.line + 1
                 if key in first_line:
                     raise ConfigError(
-                        f"given twice, on lines {first_line[key]} and {line}; keep one", source, line,
+                        f"given twice, on lines {first_line[key]} and {line}; keep one",
+                        source,
+                        line,
                         ".".join(path + (key,)),
                     )
                 first_line[key] = line
@@ -276,8 +278,9 @@ def _apply_overrides(doc: YamlDocument, overrides: Sequence[str]) -> None:
         doc.overridden.add(tuple(parts))
 
 
-def check_problem_parameters(checker: Checker, problem: dict, path: Tuple[str, ...] = ("problem",),
-                             extra_keys: Sequence[str] = ()) -> None:
+def check_problem_parameters(
+    checker: Checker, problem: dict, path: Tuple[str, ...] = ("problem",), extra_keys: Sequence[str] = ()
+) -> None:
     """For registered problems, check the parameter names under ``path`` against the factory's signature.
 
     ``use`` and ``extra_keys`` (such as a sweep's ``label``) are not parameters.
@@ -300,8 +303,7 @@ def check_problem_parameters(checker: Checker, problem: dict, path: Tuple[str, .
             close = difflib.get_close_matches(key, names, n=1, cutoff=0.5)
             hint = f"did you mean '{close[0]}'? " if close else ""
             listed = ", ".join(names) if names else "none"
-            checker.fail(path + (key,), f"the problem '{use}' has no parameter '{key}'; {hint}"
-                                        f"its parameters: {listed}")
+            checker.fail(path + (key,), f"the problem '{use}' has no parameter '{key}'; {hint}its parameters: {listed}")
     for parameter in parameters:
         if parameter.default is registry.REQUIRED and parameter.name not in problem:
             checker.fail(path, f"the problem '{use}' needs the parameter '{parameter.name}'")
@@ -316,8 +318,11 @@ def parse_run_config(doc: YamlDocument, path: Optional[Path] = None, check_probl
         checker.fail((), "the config has no 'problem' section; add one, e.g. 'problem: {use: onemax, n: 100}'")
     problem = dict(checker.mapping(data["problem"], ("problem",)))
     if "use" not in problem:
-        checker.fail(("problem",), "the 'problem' section needs a 'use' key naming a registered problem, "
-                                   "a 'path/to/file.py:callable' or a 'package.module:callable'")
+        checker.fail(
+            ("problem",),
+            "the 'problem' section needs a 'use' key naming a registered problem, "
+            "a 'path/to/file.py:callable' or a 'package.module:callable'",
+        )
     problem["use"] = checker.value(text, problem["use"], ("problem", "use"))
     for key, value in problem.items():
         if isinstance(value, str) and _E_NOTATION.match(value.strip()):
@@ -334,19 +339,27 @@ def parse_run_config(doc: YamlDocument, path: Optional[Path] = None, check_probl
     stop = StopRules(**{k: checker.setting(StopRules, k, v, ("stop", k)) for k, v in stop_data.items()})
     if isinstance(search.population, int) and stop.evaluations < search.population:
         where = ("stop", "evaluations") if "evaluations" in stop_data else ("search", "population")
-        checker.fail(where, f"the evaluation budget ({stop.evaluations}) is smaller than one population "
-                            f"({search.population}); raise stop.evaluations or lower search.population")
+        checker.fail(
+            where,
+            f"the evaluation budget ({stop.evaluations}) is smaller than one population "
+            f"({search.population}); raise stop.evaluations or lower search.population",
+        )
 
     seed = checker.value(whole_number, data.get("seed", TOP_LEVEL_DEFAULTS["seed"]), ("seed",), least=0)
     out = checker.value(text, data.get("out", TOP_LEVEL_DEFAULTS["out"]), ("out",))
-    every = checker.value(whole_number, data.get("checkpoint_every", TOP_LEVEL_DEFAULTS["checkpoint_every"]),
-                          ("checkpoint_every",), least=0)
+    every = checker.value(
+        whole_number,
+        data.get("checkpoint_every", TOP_LEVEL_DEFAULTS["checkpoint_every"]),
+        ("checkpoint_every",),
+        least=0,
+    )
     default_name = path.stem if path is not None else "run"
     name = checker.value(text, data.get("name", default_name), ("name",))
     if re.search(r"[/\\\0]", name):
         checker.fail(("name",), parameter_message("name", "a name usable in a folder name (no slashes)", repr(name)))
-    return RunConfig(name=name, problem=problem, search=search, stop=stop, seed=seed, out=out,
-                     checkpoint_every=every, path=path)
+    return RunConfig(
+        name=name, problem=problem, search=search, stop=stop, seed=seed, out=out, checkpoint_every=every, path=path
+    )
 
 
 def load_run_config(path, overrides: Sequence[str] = (), check_problem: bool = True) -> RunConfig:

@@ -10,7 +10,6 @@ from pathlib import Path
 from typing import Callable, Optional
 
 from optim import __version__
-from optim.runs.checkpoint import load_checkpoint, save_checkpoint
 from optim.runs.config import RunConfig
 from optim.errors import ConfigError, OptimError, RunFolderError
 from optim.runs.folder import RunFolder
@@ -86,18 +85,13 @@ class Interrupted(OptimError):
         return 128 + self.signum
 
 
-def _tree_edges_record(generation: int, model) -> Optional[dict]:
+def _record_tree(folder: RunFolder, generation: int, method) -> None:
+    """Append the generation's tree to ``trees.jsonl`` when the method's model is a tree or forest."""
+    model = method.model()
     if model is None or not hasattr(model, "edges"):
-        return None
+        return
     edges = model.edges()
-    record = {
-        "generation": generation,
-        "edges": [[int(p), int(c), round(float(model.edge_information[c]), 8)] for p, c in edges],
-    }
-    fit_sample = getattr(model, "_fit_sample", None)  # the survivors the tree was fitted on (optim explain's N)
-    if fit_sample is not None:
-        record["fitted_on"] = int(fit_sample[0].shape[0])
-    return record
+    folder.append_tree(generation, edges, model.edge_information[edges[:, 1]], method.fitted_on)
 
 
 class _SignalGuard:
@@ -138,13 +132,18 @@ class _StepAborted(BaseException):
 
 
 def _checkpoint(folder: RunFolder, state: dict, rows: int) -> None:
-    info = {"version": __version__, "generation": state["generation"], "evaluations": state["evaluations"],
-            "evaluated_rows": rows}
-    save_checkpoint(folder.file(RunFolder.CHECKPOINT), state, info)
+    info = {
+        "version": __version__,
+        "generation": state["generation"],
+        "evaluations": state["evaluations"],
+        "evaluated_rows": rows,
+    }
+    folder.write_checkpoint(state, info)
 
 
-def _drive(search: Search, folder: RunFolder, problem, every: int, rows: int,
-           on_generation: Optional[Callable]) -> RunOutcome:
+def _drive(
+    search: Search, folder: RunFolder, problem, every: int, rows: int, on_generation: Optional[Callable]
+) -> RunOutcome:
     """The loop shared by new and resumed runs: step, record, checkpoint, stop cleanly on signals."""
     with _SignalGuard() as guard, search.evaluator:  # the evaluator's workers live as long as this loop
         while not search.finished and guard.received is None:
@@ -160,19 +159,17 @@ def _drive(search: Search, folder: RunFolder, problem, every: int, rows: int,
             except WorkerError as exc:  # e.g. the Dask scheduler was lost: keep what came before this step
                 search.evaluator.take_failures()
                 _checkpoint(folder, before, rows)
-                raise type(exc)(f"{exc}; checkpoint saved. Continue with: optim resume "
-                                f"{shlex.quote(str(folder.path))}") from None
+                raise type(exc)(
+                    f"{exc}; checkpoint saved. Continue with: optim resume {shlex.quote(str(folder.path))}"
+                ) from None
             finally:
                 guard.in_step = False
             folder.append_evaluated(search.last_candidates, search.last_scores, entry["generation"])
             rows += search.last_candidates.shape[0]
             failures = search.evaluator.take_failures()
             if failures:
-                folder.append(RunFolder.FAILURES,
-                              [dict(f.to_dict(), generation=entry["generation"]) for f in failures])
-            tree = _tree_edges_record(entry["generation"], search.method.model())
-            if tree is not None:
-                folder.append(RunFolder.TREES, [tree])
+                folder.append_failures(entry["generation"], [f.to_dict() for f in failures])
+            _record_tree(folder, entry["generation"], search.method)
             folder.append_log(entry)
             if search.finished or guard.received is not None or (every and search.generation % every == 0):
                 _checkpoint(folder, search.get_state(), rows)
@@ -192,42 +189,47 @@ def _drive(search: Search, folder: RunFolder, problem, every: int, rows: int,
     return RunOutcome(result, folder, problem)
 
 
-def execute(config: RunConfig, problem=None, on_generation: Optional[Callable] = None,
-            on_start: Optional[Callable] = None) -> RunOutcome:
+def execute(
+    config: RunConfig, problem=None, on_generation: Optional[Callable] = None, on_start: Optional[Callable] = None
+) -> RunOutcome:
     """Run ``config`` to the end, writing its run folder as it goes (``on_start(folder)`` once it exists)."""
     problem = problem if problem is not None else build_problem(config)
     folder = RunFolder.create(config.out, config.name, config.seed)
     if on_start is not None:
         on_start(folder)
     folder.write_config(config.to_dict())
-    folder.write_info({
-        "version": __version__,
-        "config_file": str(config.path) if config.path is not None else None,
-        "config_dir": str(config.base_dir),
-        "problem": problem.describe(),
-        "variable_names": problem.variable_names,
-    })
+    folder.write_info(
+        {
+            "version": __version__,
+            "config_file": str(config.path) if config.path is not None else None,
+            "config_dir": str(config.base_dir),
+            "problem": problem.describe(),
+            "variable_names": problem.variable_names,
+        }
+    )
     search = Search(problem, config.search, config.stop, seed=config.seed)
     return _drive(search, folder, problem, config.checkpoint_every, 0, on_generation)
 
 
 def resume(run_dir, on_generation: Optional[Callable] = None) -> RunOutcome:
     """Continue a stopped run from its last checkpoint, exactly as if it had never stopped."""
-    from optim.runs.config import load_run_config
-
     folder = RunFolder(run_dir)
     if not folder.path.is_dir():
         raise RunFolderError(f"{folder.path}: no such run folder")
     info = folder.read_info()
     finished = folder.read_result()
     if finished is not None:
-        raise RunFolderError(f"{folder.path}: this run is finished ({finished.get('stop_reason')}, best score "
-                             f"{finished.get('best_score')}); there is nothing to resume")
-    state, saved = load_checkpoint(folder.file(RunFolder.CHECKPOINT))
+        raise RunFolderError(
+            f"{folder.path}: this run is finished ({finished.get('stop_reason')}, best score "
+            f"{finished.get('best_score')}); there is nothing to resume"
+        )
+    state, saved = folder.read_checkpoint()
     if saved.get("version") != __version__:
-        raise RunFolderError(f"{folder.path}: the run was made by optim {saved.get('version')}, this is optim "
-                             f"{__version__}; resume it with that version")
-    config = load_run_config(folder.file(RunFolder.CONFIG))
+        raise RunFolderError(
+            f"{folder.path}: the run was made by optim {saved.get('version')}, this is optim "
+            f"{__version__}; resume it with that version"
+        )
+    config = folder.read_run_config()
     config.path = Path(info["config_dir"]) / "config.yaml"  # relative problem paths as in the original run
     problem = build_problem(config)
     search = Search(problem, config.search, config.stop, seed=config.seed)

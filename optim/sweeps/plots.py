@@ -1,53 +1,25 @@
-"""Plot helpers (matplotlib, Agg backend): best score against evaluations, and the ECDF of evaluations to target.
+"""The sweep report's plots: best score against evaluations, and the ECDF of evaluations to target.
 
-matplotlib is an optional extra (``pip install 'optim[plot]'``); :func:`pyplot`
-raises a clear :class:`~optim.errors.OptimError` when it is missing. The
-Agg backend is selected before ``matplotlib.pyplot`` is imported, so plots are
-written without a display. Figures are saved atomically as PNG files.
+matplotlib is set up by :mod:`optim.plotting` (an optional extra); figures are saved atomically as PNG files.
 """
 
 from __future__ import annotations
 
-import importlib.util
-import io
 import warnings
 from pathlib import Path
 from typing import Mapping, Optional, Sequence, Tuple
 
 import numpy as np
 
-from optim.errors import OptimError
-from optim.runs.folder import atomic_write
+from optim.plotting import pyplot, save_png
 
 __all__ = [
-    "pyplot",
-    "plots_available",
     "best_on_grid",
     "quartile_band",
     "ecdf_points",
     "convergence_plot",
     "ecdf_plot",
-    "save_figure",
 ]
-
-PLOT_EXTRA_HINT = "plots need matplotlib; install it with pip install 'optim[plot]'"
-
-
-def plots_available() -> bool:
-    """Whether matplotlib can be imported."""
-    return importlib.util.find_spec("matplotlib") is not None
-
-
-def pyplot():
-    """``matplotlib.pyplot`` with the Agg backend (set before pyplot is imported)."""
-    try:
-        import matplotlib
-    except ImportError:
-        raise OptimError(PLOT_EXTRA_HINT) from None
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    return plt
 
 
 def best_on_grid(evaluations: Sequence[int], best: Sequence[float], grid: np.ndarray) -> np.ndarray:
@@ -108,17 +80,6 @@ def _log_evaluations_axis(axes) -> None:
     axes.set_xlabel("evaluations")
 
 
-def save_figure(figure, path) -> Path:
-    """Save a figure as PNG, atomically, and close it."""
-    plt = pyplot()
-    buffer = io.BytesIO()
-    figure.savefig(buffer, format="png", dpi=100)
-    plt.close(figure)
-    path = Path(path)
-    atomic_write(path, buffer.getvalue())
-    return path
-
-
 def convergence_plot(
     curves_by_method: Mapping[str, Sequence[Tuple[Sequence[int], Sequence[float]]]],
     path,
@@ -143,7 +104,7 @@ def convergence_plot(
     axes.grid(True, which="major", alpha=0.3)
     axes.legend(fontsize=8, loc="best")
     figure.tight_layout()
-    return save_figure(figure, path)
+    return save_png(figure, path)
 
 
 def ecdf_plot(evaluations_by_method: Mapping[str, Sequence[Optional[int]]], path, title: str, budget: int) -> Path:
@@ -163,4 +124,4 @@ def ecdf_plot(evaluations_by_method: Mapping[str, Sequence[Optional[int]]], path
     axes.grid(True, which="major", alpha=0.3)
     axes.legend(fontsize=8, loc="best")
     figure.tight_layout()
-    return save_figure(figure, path)
+    return save_png(figure, path)

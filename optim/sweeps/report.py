@@ -36,8 +36,10 @@ import numpy as np
 
 from optim.runs.config import read_yaml
 from optim.errors import OptimError, RunFolderError
-from optim.sweeps.plots import PLOT_EXTRA_HINT, convergence_plot, ecdf_plot, plots_available
-from optim.runs.folder import atomic_write
+from optim.plotting import PLOT_EXTRA_HINT, plots_available
+from optim.sweeps.plots import convergence_plot, ecdf_plot
+from optim.files import atomic_write
+from optim.text import markdown_table
 from optim.sweeps.running import SweepStore
 from optim.sweeps.config import SweepConfig, parse_sweep_config
 
@@ -262,13 +264,6 @@ def _p(value: Optional[float]) -> str:
     return "skipped" if value is None else f"{value:.2g}"
 
 
-def _markdown_table(header: Sequence[str], rows: Sequence[Sequence[str]], right_from: int = 2) -> str:
-    align = ["---" if i < right_from else "--:" for i in range(len(header))]
-    lines = ["| " + " | ".join(header) + " |", "| " + " | ".join(align) + " |"]
-    lines += ["| " + " | ".join(row) + " |" for row in rows]
-    return "\n".join(lines) + "\n"
-
-
 def results_table(summaries: Sequence[CellSummary]) -> str:
     """The main table (Markdown)."""
     header = ["problem", "method", "successes", "median evals to target", "IQR", "ERT", "mean final best", "95% CI"]
@@ -285,7 +280,7 @@ def results_table(summaries: Sequence[CellSummary]) -> str:
         ]
         for s in summaries
     ]
-    return _markdown_table(header, rows)
+    return "\n".join(markdown_table(header, rows, right_align_from=2)) + "\n"
 
 
 def comparisons_table(comparisons: Sequence[Comparison]) -> str:
@@ -294,7 +289,7 @@ def comparisons_table(comparisons: Sequence[Comparison]) -> str:
         [c.problem, c.method, _p(c.p_value), "–" if math.isnan(c.a_statistic) else f"{c.a_statistic:.2f}"]
         for c in comparisons
     ]
-    return _markdown_table(header, rows)
+    return "\n".join(markdown_table(header, rows, right_align_from=2)) + "\n"
 
 
 def _slug(index: int, label: str) -> str:

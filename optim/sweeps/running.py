@@ -36,7 +36,7 @@ import yaml
 
 from optim import __version__
 from optim.errors import ConfigError, OptimError, RunFolderError
-from optim.runs.folder import atomic_write, read_jsonl, to_json
+from optim.files import atomic_write, read_jsonl, to_json
 from optim.search import StopRules, run_search
 from optim.sweeps.config import Job, SweepConfig
 

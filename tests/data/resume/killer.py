@@ -48,7 +48,7 @@ elif mode == "after-log":
 
     records.RunFolder.append_log = append_log
 elif mode == "checkpoint":
-    original_write = records.atomic_write
+    original_write = checkpoint.atomic_write
 
     def atomic_write(path, data):
         if str(path).endswith("checkpoint.npz") and tick():
