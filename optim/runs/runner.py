@@ -7,13 +7,13 @@ import shlex
 import signal
 import threading
 from pathlib import Path
-from typing import Callable, Optional
+from typing import Callable, Optional, Tuple
 
 from optim import __version__
 from optim.runs.config import RunConfig
 from optim.errors import ConfigError, OptimError, RunFolderError
 from optim.runs.folder import RunFolder
-from optim.search import Search, SearchResult
+from optim.search import SearchResult, open_search
 from optim.evaluation import WorkerError
 
 __all__ = ["build_problem", "execute", "resume", "RunOutcome", "Interrupted"]
@@ -142,10 +142,23 @@ def _checkpoint(folder: RunFolder, state: dict, rows: int) -> None:
 
 
 def _drive(
-    search: Search, folder: RunFolder, problem, every: int, rows: int, on_generation: Optional[Callable]
+    config: RunConfig,
+    problem,
+    folder: RunFolder,
+    on_generation: Optional[Callable],
+    checkpoint: Optional[Tuple[dict, int]] = None,
 ) -> RunOutcome:
-    """The loop shared by new and resumed runs: step, record, checkpoint, stop cleanly on signals."""
-    with _SignalGuard() as guard, search.evaluator:  # the evaluator's workers live as long as this loop
+    """The loop shared by new and resumed runs: step, record, checkpoint, stop cleanly on signals.
+
+    ``checkpoint`` is ``(state, evaluated_rows)`` of a resumed run; the folder is cut back to it.
+    """
+    every, rows = config.checkpoint_every, 0
+    with _SignalGuard() as guard, open_search(problem, config.search, config.stop, config.seed) as search:
+        if checkpoint is not None:
+            state, rows = checkpoint
+            search.set_state(state)
+            folder.cut_back(search.generation, rows, problem.n)
+            folder.remove_stale_temporaries()
         while not search.finished and guard.received is None:
             before = search.get_state()
             try:
@@ -207,8 +220,7 @@ def execute(
             "variable_names": problem.variable_names,
         }
     )
-    search = Search(problem, config.search, config.stop, seed=config.seed)
-    return _drive(search, folder, problem, config.checkpoint_every, 0, on_generation)
+    return _drive(config, problem, folder, on_generation)
 
 
 def resume(run_dir, on_generation: Optional[Callable] = None) -> RunOutcome:
@@ -232,9 +244,4 @@ def resume(run_dir, on_generation: Optional[Callable] = None) -> RunOutcome:
     config = folder.read_run_config()
     config.path = Path(info["config_dir"]) / "config.yaml"  # relative problem paths as in the original run
     problem = build_problem(config)
-    search = Search(problem, config.search, config.stop, seed=config.seed)
-    search.set_state(state)
-    rows = int(saved["evaluated_rows"])
-    folder.cut_back(search.generation, rows, problem.n)
-    folder.remove_stale_temporaries()
-    return _drive(search, folder, problem, config.checkpoint_every, rows, on_generation)
+    return _drive(config, problem, folder, on_generation, (state, int(saved["evaluated_rows"])))
