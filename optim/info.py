@@ -39,6 +39,8 @@ import numbers
 
 import numpy as np
 
+from optim.samples import MAX_CARDINALITY, checked_samples, checked_weights, inferred_cardinality, shown
+
 __all__ = [
     "marginal_counts",
     "entropy",
@@ -48,7 +50,6 @@ __all__ = [
     "pair_table",
 ]
 
-_MAX_CARDINALITY = 256
 # float32 holds every integer count below this exactly.
 _EXACT_COUNTS = 1 << 24
 # Stand-in for an empty cell inside the logarithm: c * log(max(c, tiny)) is 0 at c = 0.
@@ -62,52 +63,10 @@ _SAFE_PRIOR = 2.0**-20
 
 
 # -- input checks ---------------------------------------------------------------------------
-def _shown(value) -> str:
-    return repr(value) if isinstance(value, str) else str(value)
-
-
-def _check_samples(X, caller: str) -> np.ndarray:
-    arr = np.asarray(X)
-    if arr.ndim != 2:
-        raise ValueError(
-            f"The 'X' parameter of {caller} must be a 2-D array of shape (samples, variables). "
-            f"Got an array of shape {arr.shape} instead."
-        )
-    if arr.shape[0] == 0:
-        raise ValueError(
-            f"The 'X' parameter of {caller} must contain at least one sample (row). Got shape {arr.shape} instead."
-        )
-    if arr.shape[1] == 0:
-        raise ValueError(
-            f"The 'X' parameter of {caller} must contain at least one variable (column). Got shape {arr.shape} instead."
-        )
-    if arr.dtype == np.bool_:
-        return arr.view(np.uint8)
-    if not np.issubdtype(arr.dtype, np.integer):
-        raise ValueError(
-            f"The 'X' parameter of {caller} must hold integers (for example dtype uint8). "
-            f"Got dtype {arr.dtype} instead."
-        )
-    if np.issubdtype(arr.dtype, np.signedinteger) and arr.min() < 0:
-        row, col = np.argwhere(arr < 0)[0]
-        raise ValueError(
-            f"The 'X' parameter of {caller} must hold values 0..cardinality-1. "
-            f"Got {arr[row, col]} at row {row}, column {col} instead."
-        )
-    return arr
-
-
 def _check_cardinality(cardinality, X: np.ndarray, caller: str) -> np.ndarray:
     n = X.shape[1]
     if cardinality is None:
-        col_max = X.max(axis=0).astype(np.int64)
-        if col_max.max() >= _MAX_CARDINALITY:
-            col = int(np.argmax(col_max))
-            raise ValueError(
-                f"The 'X' parameter of {caller} must hold values below {_MAX_CARDINALITY}. "
-                f"Got {col_max[col]} in column {col} instead."
-            )
-        return np.maximum(col_max + 1, 2)
+        return inferred_cardinality(X)
     if isinstance(cardinality, numbers.Integral) and not isinstance(cardinality, (bool, np.bool_)):
         card = np.full(n, int(cardinality), dtype=np.int64)
     else:
@@ -115,48 +74,17 @@ def _check_cardinality(cardinality, X: np.ndarray, caller: str) -> np.ndarray:
         if arr.shape != (n,) or not np.issubdtype(arr.dtype, np.integer):
             raise ValueError(
                 f"The 'cardinality' parameter of {caller} must be None, an integer or a sequence of "
-                f"{n} integers (one per column of 'X'). Got {_shown(cardinality)} instead."
+                f"{n} integers (one per column of 'X'). Got {shown(cardinality)} instead."
             )
         card = arr.astype(np.int64)
-    if card.min() < 2 or card.max() > _MAX_CARDINALITY:
-        bad = card[(card < 2) | (card > _MAX_CARDINALITY)][0]
+    if card.min() < 2 or card.max() > MAX_CARDINALITY:
+        bad = card[(card < 2) | (card > MAX_CARDINALITY)][0]
         raise ValueError(
             f"The 'cardinality' parameter of {caller} must give values between 2 and "
-            f"{_MAX_CARDINALITY}. Got {bad} instead."
+            f"{MAX_CARDINALITY}. Got {bad} instead."
         )
-    if int(X.max()) >= int(card.min()):
-        col_max = X.max(axis=0)
-        over = np.flatnonzero(col_max >= card)
-        if over.size:
-            col = int(over[0])
-            raise ValueError(
-                f"The 'X' parameter of {caller} must hold values 0..{card[col] - 1} in column {col} "
-                f"(its cardinality is {card[col]}). Got {col_max[col]} instead."
-            )
+    checked_samples(X, caller, card)  # every value within its column's cardinality
     return card
-
-
-def _check_weights(weights, N: int, caller: str):
-    if weights is None:
-        return None
-    try:
-        w = np.asarray(weights, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise ValueError(
-            f"The 'weights' parameter of {caller} must be an array of {N} non-negative numbers. "
-            f"Got {_shown(weights)} instead."
-        ) from None
-    if w.shape != (N,):
-        raise ValueError(
-            f"The 'weights' parameter of {caller} must have shape ({N},), one weight per row of 'X'. "
-            f"Got shape {w.shape} instead."
-        )
-    if not np.all(np.isfinite(w)) or np.any(w < 0):
-        bad = w[~(np.isfinite(w) & (w >= 0))][0]
-        raise ValueError(
-            f"The 'weights' parameter of {caller} must hold finite non-negative numbers. Got {bad} instead."
-        )
-    return w
 
 
 def _check_prior(prior, caller: str) -> float:
@@ -167,7 +95,7 @@ def _check_prior(prior, caller: str) -> float:
         or prior < 0
     ):
         raise ValueError(
-            f"The 'prior' parameter of {caller} must be a non-negative number. Got {_shown(prior)} instead."
+            f"The 'prior' parameter of {caller} must be a non-negative number. Got {shown(prior)} instead."
         )
     return float(prior)
 
@@ -178,24 +106,16 @@ def _check_base(base, caller: str) -> float:
     if isinstance(base, (bool, np.bool_)) or not isinstance(base, numbers.Real) or not math.isfinite(base) or base <= 1:
         raise ValueError(
             f"The 'base' parameter of {caller} must be None (natural logarithm) or a number greater "
-            f"than 1. Got {_shown(base)} instead."
+            f"than 1. Got {shown(base)} instead."
         )
     return math.log(base)
 
 
-def _check_mass(weights, prior: float, caller: str) -> None:
-    if weights is not None and prior == 0 and not np.any(weights > 0):
-        raise ValueError(
-            f"The 'weights' parameter of {caller} must have a positive sum when 'prior' is 0, "
-            f"otherwise no distribution is defined. Got weights that are all zero instead."
-        )
-
-
 def _check_common(X, cardinality, weights, prior, caller):
-    X = _check_samples(X, caller)
+    X = checked_samples(X, caller)
     card = _check_cardinality(cardinality, X, caller)
-    w = _check_weights(weights, X.shape[0], caller)
     a = _check_prior(prior, caller)
+    w = checked_weights(weights, X.shape[0], caller, need_mass=a == 0)
     return X, card, w, a
 
 
@@ -494,9 +414,9 @@ def marginal_counts(X, cardinality=None, weights=None) -> np.ndarray:
         ``kmax`` is the largest cardinality and cells ``x >= k_i`` are 0.
     """
     caller = "marginal_counts"
-    X = _check_samples(X, caller)
+    X = checked_samples(X, caller)
     card = _check_cardinality(cardinality, X, caller)
-    w = _check_weights(weights, X.shape[0], caller)
+    w = checked_weights(weights, X.shape[0], caller, need_mass=False)
     return _padded_counts(X, card, w)
 
 
@@ -509,7 +429,6 @@ def entropy(X, cardinality=None, weights=None, prior=0.0, base=None) -> np.ndarr
     caller = "entropy"
     X, card, w, a = _check_common(X, cardinality, weights, prior, caller)
     log_base = _check_base(base, caller)
-    _check_mass(w, a, caller)
     return _marginal_entropy(X, card, w, a) / log_base
 
 
@@ -523,7 +442,6 @@ def joint_entropy(X, cardinality=None, weights=None, prior=0.0, base=None) -> np
     caller = "joint_entropy"
     X, card, w, a = _check_common(X, cardinality, weights, prior, caller)
     log_base = _check_base(base, caller)
-    _check_mass(w, a, caller)
     joint = _pair_statistics(X, card, w, a)[0].astype(np.float64)
     np.fill_diagonal(joint, _marginal_entropy(X, card, w, a))
     return joint / log_base
@@ -538,7 +456,6 @@ def conditional_entropy(X, cardinality=None, weights=None, prior=0.0, base=None)
     caller = "conditional_entropy"
     X, card, w, a = _check_common(X, cardinality, weights, prior, caller)
     log_base = _check_base(base, caller)
-    _check_mass(w, a, caller)
     joint, marg = _pair_statistics(X, card, w, a)
     result = joint.astype(np.float64) - marg.T
     np.maximum(result, 0.0, out=result)
@@ -563,7 +480,6 @@ def mutual_information(X, cardinality=None, prior=0.0, weights=None, base=None) 
     caller = "mutual_information"
     X, card, w, a = _check_common(X, cardinality, weights, prior, caller)
     log_base = _check_base(base, caller)
-    _check_mass(w, a, caller)
     result = _information_matrix(X, card, w, a).astype(np.float64)
     if log_base != 1.0:
         result /= log_base
@@ -585,7 +501,7 @@ def pair_table(X, i, j, cardinality=None, weights=None, prior=0.0) -> np.ndarray
     for name, index in (("i", i), ("j", j)):
         if isinstance(index, (bool, np.bool_)) or not isinstance(index, numbers.Integral) or not 0 <= index < n:
             raise ValueError(
-                f"The '{name}' parameter of {caller} must be a column index in 0..{n - 1}. Got {_shown(index)} instead."
+                f"The '{name}' parameter of {caller} must be a column index in 0..{n - 1}. Got {shown(index)} instead."
             )
     k_i, k_j = int(card[i]), int(card[j])
     codes = X[:, i].astype(np.int64) * k_j + X[:, j]

@@ -415,13 +415,17 @@ def test_prior_message_matches_the_documented_form():
 GOOD = np.array([[0, 1], [1, 2], [1, 0]], dtype=np.uint8)
 
 
+def test_whole_valued_floats_are_samples_like_integers():
+    np.testing.assert_array_equal(entropy(GOOD.astype(float)), entropy(GOOD))
+
+
 @pytest.mark.parametrize(
     "call, words",
     [
         (lambda: mutual_information(np.zeros(4, dtype=np.uint8)), ["'X'", "2-D", "(4,)"]),
         (lambda: mutual_information(np.zeros((0, 3), dtype=np.uint8)), ["'X'", "at least one sample"]),
         (lambda: entropy(np.zeros((3, 0), dtype=np.uint8)), ["'X'", "at least one variable"]),
-        (lambda: joint_entropy(GOOD.astype(float)), ["'X'", "integers", "float64"]),
+        (lambda: joint_entropy(GOOD + 0.5), ["'X'", "whole numbers", "float64"]),
         (lambda: entropy(np.array([[0], [-2]])), ["'X'", "-2", "row 1", "column 0"]),
         (lambda: mutual_information(GOOD, cardinality=2), ["'X'", "column 1", "Got 2"]),
         (lambda: mutual_information(GOOD, cardinality=1), ["'cardinality'", "between 2 and 256", "Got 1"]),

@@ -9,57 +9,9 @@ from typing import Optional
 import numpy as np
 
 from optim.problem import as_cardinality
+from optim.samples import checked_samples, checked_weights, inferred_cardinality
 
-__all__ = ["Model", "validate_samples", "validate_weights"]
-
-
-def validate_samples(X, cardinality: Optional[np.ndarray], owner: str) -> np.ndarray:
-    """Check that ``X`` is a non-empty 2-D array of values within ``cardinality``."""
-    X = np.asarray(X)
-    if X.ndim != 2:
-        raise ValueError(f"The samples given to {owner} must be a 2-D array (count, n). Got shape {X.shape} instead.")
-    if X.shape[0] == 0:
-        raise ValueError(f"The samples given to {owner} must contain at least one row.")
-    if not np.issubdtype(X.dtype, np.integer):
-        if np.issubdtype(X.dtype, np.bool_):
-            X = X.astype(np.uint8)
-        elif np.all(np.isfinite(X)) and np.all(X == np.round(X)):
-            X = X.astype(np.int64)
-        else:
-            raise ValueError(f"The samples given to {owner} must hold whole numbers.")
-    if X.shape[1] == 0:
-        raise ValueError(f"The samples given to {owner} must have at least one column.")
-    if X.min() < 0:
-        raise ValueError(f"The samples given to {owner} must be non-negative.")
-    if X.max() > 255:
-        raise ValueError(f"The samples given to {owner} must hold values below 256. Got {int(X.max())}.")
-    if cardinality is not None:
-        if X.shape[1] != cardinality.shape[0]:
-            raise ValueError(
-                f"The samples given to {owner} must have {cardinality.shape[0]} columns. Got {X.shape[1]} instead."
-            )
-        too_big = X.max(axis=0) >= cardinality
-        if np.any(too_big):
-            col = int(np.flatnonzero(too_big)[0])
-            raise ValueError(
-                f"Column {col} of the samples given to {owner} holds the value {int(X[:, col].max())}, "
-                f"outside 0..{int(cardinality[col]) - 1}."
-            )
-    return X.astype(np.uint8, copy=False)
-
-
-def validate_weights(weights, count: int, owner: str) -> Optional[np.ndarray]:
-    """Check optional sample weights: ``count`` non-negative finite numbers, not all zero."""
-    if weights is None:
-        return None
-    w = np.asarray(weights, dtype=np.float64).reshape(-1)
-    if w.shape[0] != count:
-        raise ValueError(
-            f"The 'weights' parameter of {owner} must have one entry per sample ({count}). Got {w.shape[0]} instead."
-        )
-    if not np.all(np.isfinite(w)) or np.any(w < 0) or w.sum() <= 0:
-        raise ValueError(f"The 'weights' parameter of {owner} must hold finite non-negative numbers, not all zero.")
-    return w
+__all__ = ["Model"]
 
 
 class Model(abc.ABC):
@@ -91,14 +43,14 @@ class Model(abc.ABC):
     def _prepare(self, X, weights):
         """Validate data, settle the cardinality and return ``(X, weights)``."""
         owner = f"{type(self).__name__}.fit"
-        X = validate_samples(X, None, owner)
+        X = checked_samples(X, owner)
         if self.cardinality is None:
             if self._given_cardinality is None:
-                self.cardinality = np.maximum(X.max(axis=0).astype(np.int64) + 1, 2)
+                self.cardinality = inferred_cardinality(X)
             else:
                 self.cardinality = as_cardinality(self._given_cardinality, X.shape[1])
-        X = validate_samples(X, self.cardinality, owner)
-        return X, validate_weights(weights, X.shape[0], owner)
+        X = checked_samples(X, owner, self.cardinality)
+        return X, checked_weights(weights, X.shape[0], owner, need_mass=self.prior == 0)
 
     def _require_fitted(self):
         if not self.fitted:

@@ -8,7 +8,8 @@ import numpy as np
 
 from optim.info import _information_and_pair_ones
 from optim.models._tables import draw_from_rows, normalise_rows, table_entropy, valid_mask
-from optim.models.base import Model, validate_samples
+from optim.models.base import Model
+from optim.samples import checked_samples
 from optim.models.spanning import _prim_nonnegative
 
 __all__ = ["DependencyTree"]
@@ -269,7 +270,7 @@ class DependencyTree(Model):
 
     def log_prob(self, X) -> np.ndarray:
         self._require_fitted()
-        X = validate_samples(X, self.cardinality, f"{type(self).__name__}.log_prob").astype(np.intp)
+        X = checked_samples(X, f"{type(self).__name__}.log_prob", self.cardinality).astype(np.intp)
         with np.errstate(divide="ignore"):
             log_cond = np.log(self.conditionals)
         columns = np.arange(self.n)[None, :]

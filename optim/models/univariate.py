@@ -5,7 +5,8 @@ from __future__ import annotations
 import numpy as np
 
 from optim.models._tables import draw_from_rows, normalise_rows, table_entropy, valid_mask
-from optim.models.base import Model, validate_samples
+from optim.models.base import Model
+from optim.samples import checked_samples
 
 __all__ = ["Univariate"]
 
@@ -66,7 +67,7 @@ class Univariate(Model):
 
     def log_prob(self, X) -> np.ndarray:
         self._require_fitted()
-        X = validate_samples(X, self.cardinality, "Univariate.log_prob").astype(np.intp)
+        X = checked_samples(X, "Univariate.log_prob", self.cardinality).astype(np.intp)
         with np.errstate(divide="ignore"):
             logp = np.log(self.probabilities)
         return logp[np.arange(self.n)[None, :], X].sum(axis=1)
